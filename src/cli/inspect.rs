@@ -1,0 +1,140 @@
+//! `hierax inspect`: read inputs and print what was understood.
+
+use anyhow::Context;
+use clap::Args;
+use hierax::io::validate::{self, ConnectomeRules};
+use hierax::io::{read_array, InputSpec, LoadedArray};
+use std::process::ExitCode;
+
+/// Read each input and print what hierax understood: shape, stored type,
+/// names, summary statistics, likely role and any problems.
+#[derive(Debug, Args)]
+#[command(after_help = "Examples:\n  \
+    hierax inspect demo-data/sub-01/sub-01_connectome.csv\n  \
+    hierax inspect sc.mat:SC bold.npy atlas.h5:/hierarchy/myelin\n  \
+    hierax inspect confounds.tsv:framewise_displacement")]
+pub struct InspectArgs {
+    /// Inputs as PATH[:KEY] (KEY: .npz array, .h5/.mat dataset or variable, CSV/TSV column).
+    #[arg(required = true, value_name = "PATH[:KEY]")]
+    inputs: Vec<String>,
+
+    /// Print one JSON object per input instead of text.
+    #[arg(long)]
+    json: bool,
+}
+
+fn summary(la: &LoadedArray) -> serde_json::Value {
+    let finite: Vec<f64> = la.data.iter().copied().filter(|v| v.is_finite()).collect();
+    let n = finite.len();
+    let (min, max, mean) = if n == 0 {
+        (f64::NAN, f64::NAN, f64::NAN)
+    } else {
+        let min = finite.iter().copied().fold(f64::INFINITY, f64::min);
+        let max = finite.iter().copied().fold(f64::NEG_INFINITY, f64::max);
+        (min, max, finite.iter().sum::<f64>() / n as f64)
+    };
+    serde_json::json!({
+        "min": min, "max": max, "mean": mean,
+        "non_finite": la.data.len() - n,
+        "zeros": la.data.iter().filter(|v| **v == 0.0).count(),
+    })
+}
+
+/// The role a 2-D array most likely plays, and what checking it as such finds.
+fn role_guess(la: &LoadedArray) -> (String, Vec<String>) {
+    let shape = la.data.shape();
+    match shape {
+        [n] => (format!("a regional map or per-frame vector ({n} values)"), vec![]),
+        [r, c] if r == c => match validate::connectome(la, &ConnectomeRules::default()) {
+            Ok(conn) => (format!("a symmetric connectome of {r} regions"), conn.notes),
+            Err(e) => {
+                let directed = ConnectomeRules { directed: true, ..Default::default() };
+                match validate::connectome(la, &directed) {
+                    Ok(conn) => (
+                        format!("a square {r} x {c} matrix: a directed connectome (not symmetric)"),
+                        conn.notes,
+                    ),
+                    Err(_) => (format!("a square {r} x {c} matrix"), vec![e.to_string()]),
+                }
+            }
+        },
+        [r, c] if la.col_names.is_some() => {
+            (format!("a time series of {r} frames x {c} regions (header names the columns)"), vec![])
+        }
+        [r, c] => (
+            format!(
+                "a {r} x {c} matrix: as a time series, {} (pass --orientation to other commands to be sure)",
+                if r > c { "probably frames x regions" } else { "probably regions x frames" }
+            ),
+            vec![],
+        ),
+        _ => (format!("a {}-D array", shape.len()), vec![]),
+    }
+}
+
+fn preview(names: &[String]) -> String {
+    let head: Vec<&str> = names.iter().take(5).map(String::as_str).collect();
+    if names.len() > 5 {
+        format!("{} ... ({} in all)", head.join(", "), names.len())
+    } else {
+        head.join(", ")
+    }
+}
+
+pub fn run(args: InspectArgs) -> anyhow::Result<ExitCode> {
+    let mut failed = 0usize;
+    for raw in &args.inputs {
+        let result = InputSpec::parse(raw).and_then(|spec| read_array(&spec));
+        let la = match result {
+            Ok(la) => la,
+            Err(e) => {
+                eprintln!("hierax: error: {e}");
+                failed += 1;
+                continue;
+            }
+        };
+        let (role, problems) = role_guess(&la);
+        let stats = summary(&la);
+        if args.json {
+            let v = serde_json::json!({
+                "input": la.spec.to_string(),
+                "stored_type": la.stored.to_string(),
+                "sparse": la.sparse,
+                "shape": la.data.shape(),
+                "row_names": la.row_names,
+                "column_names": la.col_names,
+                "summary": stats,
+                "role": role,
+                "notes": la.notes.iter().chain(problems.iter()).collect::<Vec<_>>(),
+            });
+            println!("{}", serde_json::to_string(&v).context("cannot encode JSON")?);
+        } else {
+            println!("{}", la.spec);
+            println!(
+                "  stored as   {}{}, shape {:?}",
+                la.stored,
+                if la.sparse { " (sparse)" } else { "" },
+                la.data.shape()
+            );
+            println!("  looks like  {role}");
+            if let Some(n) = &la.col_names {
+                println!("  columns     {}", preview(n));
+            }
+            if let Some(n) = &la.row_names {
+                println!("  rows        {}", preview(n));
+            }
+            println!(
+                "  values      min {}, max {}, mean {:.6}, {} non-finite, {} zeros",
+                stats["min"],
+                stats["max"],
+                stats["mean"].as_f64().unwrap_or(f64::NAN),
+                stats["non_finite"],
+                stats["zeros"]
+            );
+            for note in la.notes.iter().chain(problems.iter()) {
+                println!("  note        {note}");
+            }
+        }
+    }
+    Ok(if failed == 0 { ExitCode::SUCCESS } else { ExitCode::from(2) })
+}

@@ -1,0 +1,44 @@
+//! Command-line parsing. Each command has its own file holding its clap
+//! arguments and a `run` that turns them into library calls.
+
+mod demo;
+mod inspect;
+
+use clap::{Parser, Subcommand};
+use std::process::ExitCode;
+
+/// Intrinsic timescales, hierarchy states and network control energy.
+///
+/// Research software: results are not for clinical decisions.
+#[derive(Debug, Parser)]
+#[command(name = "hierax", version, about, long_about = None, propagate_version = true)]
+pub struct Cli {
+    #[command(subcommand)]
+    command: Command,
+}
+
+#[derive(Debug, Subcommand)]
+enum Command {
+    Inspect(inspect::InspectArgs),
+    Demo(demo::DemoArgs),
+}
+
+/// Parse the command line and run the chosen command.
+pub fn run() -> anyhow::Result<ExitCode> {
+    let cli = Cli::parse();
+    match cli.command {
+        Command::Inspect(args) => inspect::run(args),
+        Command::Demo(args) => demo::run(args),
+    }
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+    use clap::CommandFactory;
+
+    #[test]
+    fn cli_definition_is_consistent() {
+        Cli::command().debug_assert();
+    }
+}

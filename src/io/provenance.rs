@@ -1,0 +1,148 @@
+//! Provenance: what produced an output, from which inputs, with which
+//! parameters. Written into every output (HDF5 attributes, JSON summary).
+
+use super::IoError;
+use serde::Serialize;
+use sha2::{Digest, Sha256};
+use std::path::Path;
+
+/// One input file and its digest.
+#[derive(Clone, Debug, Serialize, PartialEq, Eq)]
+pub struct InputRecord {
+    /// The role the input played ("connectome", "series", "map", ...).
+    pub role: String,
+    /// The spec as given, `PATH[:KEY]`.
+    pub spec: String,
+    /// SHA-256 of the whole file, lower-case hex.
+    pub sha256: String,
+    /// File size in bytes.
+    pub bytes: u64,
+}
+
+impl InputRecord {
+    /// Digest the file behind `spec` for `role`.
+    ///
+    /// # Errors
+    /// [`IoError::Os`] when the file cannot be read.
+    pub fn of(role: &str, spec: &super::InputSpec) -> Result<Self, IoError> {
+        let (sha256, bytes) = sha256_file(&spec.path)?;
+        Ok(InputRecord { role: role.to_string(), spec: spec.to_string(), sha256, bytes })
+    }
+}
+
+/// Everything needed to say how an output was made.
+#[derive(Clone, Debug, Serialize)]
+pub struct Provenance {
+    /// Always "hierax".
+    pub tool: &'static str,
+    /// [`crate::VERSION`].
+    pub version: &'static str,
+    /// The command that ran, e.g. "demo" or "subject".
+    pub command: String,
+    /// Creation time, UTC, RFC 3339. Taken from `SOURCE_DATE_EPOCH` when set,
+    /// so that outputs can be made byte-reproducible.
+    pub created_utc: String,
+    /// The inputs with their digests.
+    pub inputs: Vec<InputRecord>,
+    /// Every parameter used, as JSON.
+    pub parameters: serde_json::Value,
+    /// Fixed reminder carried by every output.
+    pub notice: &'static str,
+}
+
+/// The notice written into every output.
+pub const RESEARCH_NOTICE: &str = "Research software: results are not for clinical decisions.";
+
+impl Provenance {
+    /// A record for `command` with no inputs yet.
+    pub fn new(command: &str, parameters: serde_json::Value) -> Self {
+        Provenance {
+            tool: "hierax",
+            version: crate::VERSION,
+            command: command.to_string(),
+            created_utc: now_rfc3339(),
+            inputs: Vec::new(),
+            parameters,
+            notice: RESEARCH_NOTICE,
+        }
+    }
+}
+
+/// SHA-256 of a file, streamed, as lower-case hex, with the file size.
+///
+/// # Errors
+/// [`IoError::Os`] when the file cannot be read.
+pub fn sha256_file(path: &Path) -> Result<(String, u64), IoError> {
+    use std::io::Read;
+    let mut f = std::fs::File::open(path).map_err(|e| IoError::os(path, "cannot open", e))?;
+    let mut hasher = Sha256::new();
+    let mut buf = vec![0u8; 1 << 16];
+    let mut total = 0u64;
+    loop {
+        let n = f.read(&mut buf).map_err(|e| IoError::os(path, "cannot read", e))?;
+        if n == 0 {
+            break;
+        }
+        total += n as u64;
+        hasher.update(&buf[..n]);
+    }
+    Ok((hex(&hasher.finalize()), total))
+}
+
+fn hex(bytes: &[u8]) -> String {
+    bytes.iter().map(|b| format!("{b:02x}")).collect()
+}
+
+/// Current UTC time as `YYYY-MM-DDThh:mm:ssZ` (or `SOURCE_DATE_EPOCH`).
+pub fn now_rfc3339() -> String {
+    let secs =
+        std::env::var("SOURCE_DATE_EPOCH").ok().and_then(|s| s.parse::<i64>().ok()).unwrap_or_else(|| {
+            std::time::SystemTime::now()
+                .duration_since(std::time::UNIX_EPOCH)
+                .map(|d| d.as_secs() as i64)
+                .unwrap_or(0)
+        });
+    rfc3339_from_unix(secs)
+}
+
+/// Format Unix seconds as RFC 3339 UTC, via the days-to-civil algorithm of
+/// Hinnant ("chrono-Compatible Low-Level Date Algorithms", 2013).
+pub fn rfc3339_from_unix(secs: i64) -> String {
+    let days = secs.div_euclid(86_400);
+    let rem = secs.rem_euclid(86_400);
+    let z = days + 719_468;
+    let era = z.div_euclid(146_097);
+    let doe = z - era * 146_097;
+    let yoe = (doe - doe / 1460 + doe / 36_524 - doe / 146_096) / 365;
+    let y = yoe + era * 400;
+    let doy = doe - (365 * yoe + yoe / 4 - yoe / 100);
+    let mp = (5 * doy + 2) / 153;
+    let d = doy - (153 * mp + 2) / 5 + 1;
+    let m = if mp < 10 { mp + 3 } else { mp - 9 };
+    let y = if m <= 2 { y + 1 } else { y };
+    format!("{y:04}-{m:02}-{d:02}T{:02}:{:02}:{:02}Z", rem / 3600, (rem % 3600) / 60, rem % 60)
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+
+    #[test]
+    fn sha256_of_abc_matches_fips_180_2_example() {
+        // FIPS 180-2, Appendix B.1: SHA-256("abc").
+        let dir = tempfile::tempdir().unwrap();
+        let p = dir.path().join("abc");
+        std::fs::write(&p, b"abc").unwrap();
+        let (h, n) = sha256_file(&p).unwrap();
+        assert_eq!(h, "ba7816bf8f01cfea414140de5dae2223b00361a396177a9cb410ff61f20015ad");
+        assert_eq!(n, 3);
+    }
+
+    #[test]
+    fn unix_time_formats_as_rfc3339() {
+        // Reference values printed by GNU coreutils `date -u -d @SECS` (9.1).
+        assert_eq!(rfc3339_from_unix(0), "1970-01-01T00:00:00Z");
+        assert_eq!(rfc3339_from_unix(951_782_400), "2000-02-29T00:00:00Z");
+        assert_eq!(rfc3339_from_unix(1_798_761_599), "2026-12-31T23:59:59Z");
+    }
+}

@@ -1,0 +1,29 @@
+//! # hierax
+//!
+//! Intrinsic neural timescales, hierarchy-ordered brain states and linear
+//! network control energy, for single subjects and for cohorts.
+//!
+//! The modules mirror the science and data flows one way through them:
+//!
+//! ```text
+//! io  ->  timescale / hierarchy / control  ->  link  ->  stats  ->  cohort  ->  report
+//! ```
+//!
+//! * [`io`]: readers for the field's file formats behind one `PATH[:KEY]`
+//!   input spec, validation of connectomes and series, atomic writers, the
+//!   per-subject HDF5 file and provenance.
+//! * [`timescale`]: autocorrelation and intrinsic-timescale estimators.
+//! * [`hierarchy`]: ranking regions along a map and building brain states.
+//! * [`control`]: network control energy of state transitions.
+//!
+//! This is research software. Its results are not for clinical decisions.
+
+#![forbid(unsafe_code)]
+
+pub mod control;
+pub mod hierarchy;
+pub mod io;
+pub mod timescale;
+
+/// The hierax version written into every output file.
+pub const VERSION: &str = env!("CARGO_PKG_VERSION");

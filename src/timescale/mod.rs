@@ -1,0 +1,1 @@
+//! Intrinsic neural timescales from resting-state series (issue 3; not built yet).

@@ -1,0 +1,23 @@
+//! The binary end to end: what a user types and sees.
+
+use crate::util::{hierax, run, write};
+
+#[test]
+fn inspect_reports_a_csv_connectome() {
+    let dir = tempfile::tempdir().unwrap();
+    let p = write(dir.path(), "c.csv", "a,b,c\n0,1,2\n1,0,3\n2,3,0\n");
+    let out = run(hierax().arg("inspect").arg(&p));
+    assert!(out.status.success());
+    let text = String::from_utf8(out.stdout).unwrap();
+    assert!(text.contains("a symmetric connectome of 3 regions"), "{text}");
+    assert!(text.contains("columns     a, b, c"), "{text}");
+}
+
+#[test]
+fn inspect_unknown_extension_is_one_line_and_exit_2() {
+    let out = run(hierax().args(["inspect", "conn.xlsx"]));
+    assert_eq!(out.status.code(), Some(2));
+    let err = String::from_utf8(out.stderr).unwrap();
+    assert_eq!(err.lines().count(), 1, "{err}");
+    assert!(err.contains("unknown file type `.xlsx`"), "{err}");
+}

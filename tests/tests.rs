@@ -1,0 +1,4 @@
+//! All integration tests, built into one binary (see DEVELOPERS.md).
+
+mod cli;
+mod util;
