@@ -1,4 +1,5 @@
 //! All integration tests, built into one binary (see DEVELOPERS.md).
 
+mod bad_input;
 mod cli;
 mod util;

@@ -2,7 +2,7 @@
 
 use anyhow::Context;
 use clap::Args;
-use hierax::io::validate::{self, ConnectomeRules};
+use hierax::io::validate::{self, ConnectomeRules, Orientation};
 use hierax::io::{read_array, InputSpec, LoadedArray};
 use std::process::ExitCode;
 
@@ -12,7 +12,8 @@ use std::process::ExitCode;
 #[command(after_help = "Examples:\n  \
     hierax inspect demo-data/sub-01/sub-01_connectome.csv\n  \
     hierax inspect sc.mat:SC bold.npy atlas.h5:/hierarchy/myelin\n  \
-    hierax inspect confounds.tsv:framewise_displacement")]
+    hierax inspect confounds.tsv:framewise_displacement\n  \
+    hierax inspect --as series --count 100 sub-01_bold.npy")]
 pub struct InspectArgs {
     /// Inputs as PATH[:KEY] (KEY: .npz array, .h5/.mat dataset or variable, CSV/TSV column).
     #[arg(required = true, value_name = "PATH[:KEY]")]
@@ -21,6 +22,79 @@ pub struct InspectArgs {
     /// Print one JSON object per input instead of text.
     #[arg(long)]
     json: bool,
+
+    /// Check every input in this role and fail (exit 2) on the first problem.
+    #[arg(long = "as", value_enum, value_name = "ROLE")]
+    role: Option<Role>,
+
+    /// With --as connectome: the network is directed (no symmetry check).
+    #[arg(long)]
+    directed: bool,
+
+    /// With --as series: layout of the matrix.
+    #[arg(long, value_enum, default_value = "auto")]
+    orientation: OrientationArg,
+
+    /// With --as series, map or mask: the expected number of regions (series,
+    /// map) or frames (mask).
+    #[arg(long, value_name = "N")]
+    count: Option<usize>,
+}
+
+/// The role an input is checked in.
+#[derive(Clone, Copy, Debug, clap::ValueEnum)]
+enum Role {
+    /// A square, non-negative structural connectome.
+    Connectome,
+    /// A regional time series (frames x regions).
+    Series,
+    /// One value per region.
+    Map,
+    /// A 0/1 per-frame censoring mask.
+    Mask,
+}
+
+/// Command-line spelling of [`Orientation`].
+#[derive(Clone, Copy, Debug, clap::ValueEnum)]
+pub enum OrientationArg {
+    /// Settle from the region count or a header of names.
+    Auto,
+    /// Rows are time points (BIDS derivatives).
+    TimeByRegion,
+    /// Rows are regions.
+    RegionByTime,
+}
+
+impl From<OrientationArg> for Orientation {
+    fn from(o: OrientationArg) -> Self {
+        match o {
+            OrientationArg::Auto => Orientation::Auto,
+            OrientationArg::TimeByRegion => Orientation::TimeByRegion,
+            OrientationArg::RegionByTime => Orientation::RegionByTime,
+        }
+    }
+}
+
+/// Validate `la` in `role`; the notes of a passing check.
+fn check_role(la: &LoadedArray, role: Role, args: &InspectArgs) -> Result<Vec<String>, hierax::io::IoError> {
+    match role {
+        Role::Connectome => {
+            let rules = ConnectomeRules { directed: args.directed, ..Default::default() };
+            validate::connectome(la, &rules).map(|c| c.notes)
+        }
+        Role::Series => validate::series(la, args.orientation.into(), args.count).map(|s| {
+            let mut notes =
+                vec![format!("{} frames x {} regions, {}", s.data.nrows(), s.data.ncols(), s.orientation)];
+            notes.extend(s.notes);
+            notes
+        }),
+        Role::Map => validate::region_map(la, args.count).map(|m| m.notes),
+        Role::Mask => {
+            let n = args.count.unwrap_or(la.data.len());
+            validate::frame_mask(la, n)
+                .map(|m| vec![format!("{} of {} frames kept", m.iter().filter(|k| **k).count(), m.len())])
+        }
+    }
 }
 
 fn summary(la: &LoadedArray) -> serde_json::Value {
@@ -93,7 +167,17 @@ pub fn run(args: InspectArgs) -> anyhow::Result<ExitCode> {
                 continue;
             }
         };
-        let (role, problems) = role_guess(&la);
+        let (role, problems) = match args.role {
+            Some(r) => match check_role(&la, r, &args) {
+                Ok(notes) => (format!("a valid {}", format!("{r:?}").to_lowercase()), notes),
+                Err(e) => {
+                    eprintln!("hierax: error: {e}");
+                    failed += 1;
+                    continue;
+                }
+            },
+            None => role_guess(&la),
+        };
         let stats = summary(&la);
         if args.json {
             let v = serde_json::json!({
