@@ -20,6 +20,7 @@
 
 #![forbid(unsafe_code)]
 
+pub mod cohort;
 pub mod control;
 pub mod hierarchy;
 pub mod io;
