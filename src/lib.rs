@@ -24,6 +24,7 @@ pub mod cohort;
 pub mod control;
 pub mod hierarchy;
 pub mod io;
+pub mod stats;
 pub mod timescale;
 
 /// The hierax version written into every output file.

@@ -1,0 +1,57 @@
+"""Reference values for hierax::stats, from scipy 1.14.1 and statsmodels 0.14.4.
+
+Run:  /opt/hierax-ref/bin/python tests/reference/make_stats_fixtures.py
+Writes tests/data/stats/expected.json (inputs and expected outputs, float64
+as repr strings so the Rust side parses them exactly).
+"""
+import json
+import pathlib
+
+import numpy as np
+import scipy
+import statsmodels
+from scipy import stats
+from statsmodels.stats.multitest import multipletests
+
+OUT = pathlib.Path(__file__).resolve().parents[1] / "data" / "stats" / "expected.json"
+rng = np.random.default_rng(20261201)
+
+
+def f(v):
+    return [repr(float(x)) for x in np.atleast_1d(v)]
+
+
+cases = []
+# Continuous, tied integers, and a strongly related pair.
+x1 = rng.normal(size=20)
+y1 = 0.4 * x1 + rng.normal(size=20)
+x2 = rng.integers(0, 5, size=30).astype(float)
+y2 = rng.integers(0, 4, size=30).astype(float) + 0.5 * x2
+x3 = np.arange(50, dtype=float)
+y3 = np.sqrt(x3) + 0.1 * rng.normal(size=50)
+for name, x, y in [("normal_n20", x1, y1), ("ties_n30", x2, y2), ("monotone_n50", x3, y3)]:
+    pr = stats.pearsonr(x, y)
+    sr = stats.spearmanr(x, y)
+    lr = stats.linregress(x, y)
+    z = np.arctanh(pr.statistic)
+    half = stats.norm.ppf(0.975) / np.sqrt(len(x) - 3)
+    cases.append({
+        "name": name, "x": f(x), "y": f(y),
+        "pearson_r": f(pr.statistic)[0], "pearson_p": f(pr.pvalue)[0],
+        "spearman_r": f(sr.statistic)[0], "spearman_p": f(sr.pvalue)[0],
+        "fisher_lo": f(np.tanh(z - half))[0], "fisher_hi": f(np.tanh(z + half))[0],
+        "slope": f(lr.slope)[0], "intercept": f(lr.intercept)[0], "r_squared": f(lr.rvalue ** 2)[0],
+        "rankdata_x": f(stats.rankdata(x)),
+    })
+
+p = np.concatenate([rng.uniform(size=25) ** 3, [0.01, 0.01, 0.2, 1.0, 0.0]])
+bh = multipletests(p, method="fdr_bh")[1]
+
+OUT.parent.mkdir(parents=True, exist_ok=True)
+OUT.write_text(json.dumps({
+    "generator": "tests/reference/make_stats_fixtures.py",
+    "versions": {"numpy": np.__version__, "scipy": scipy.__version__, "statsmodels": statsmodels.__version__},
+    "correlations": cases,
+    "bh_p": f(p), "bh_adjusted": f(bh),
+}, indent=1) + "\n")
+print("wrote", OUT)
