@@ -24,6 +24,7 @@ pub mod cohort;
 pub mod control;
 pub mod hierarchy;
 pub mod io;
+pub mod link;
 pub mod stats;
 pub mod timescale;
 
