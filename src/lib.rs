@@ -15,6 +15,10 @@
 //! * [`timescale`]: autocorrelation and intrinsic-timescale estimators.
 //! * [`hierarchy`]: ranking regions along a map and building brain states.
 //! * [`control`]: network control energy of state transitions.
+//! * [`link`]: pair tables of state transitions, energy asymmetries,
+//!   hierarchical distance and timescale shifts, per-subject summaries.
+//! * [`stats`]: correlations, permutation p-values, FDR, network nulls.
+//! * [`cohort`]: participant lists and runs over many subjects.
 //!
 //! This is research software. Its results are not for clinical decisions.
 
