@@ -55,3 +55,21 @@ OUT.write_text(json.dumps({
     "bh_p": f(p), "bh_adjusted": f(bh),
 }, indent=1) + "\n")
 print("wrote", OUT)
+
+# Kolmogorov-Smirnov against U(0,1): statistic exactly, p-value approximately.
+# scipy 1.14.1 (stats/_ksstats.py, _kolmogn) evaluates the exact Durbin/Marsaglia-Tsang-Wang
+# matrix for n <= 140 when n d^2 <= 0.754693, and for n > 140 when n d^1.5 <= 1.4; elsewhere it
+# switches to Pomeranz's recursion, Pelz-Good's asymptotic series or 2*smirnov. The regime is
+# recorded so the Rust test can hold the exact cases to rounding and say why the others differ.
+ks_cases = []
+for n, power in [(20, 1.0), (120, 1.0), (200, 1.0), (200, 1.4)]:
+    u = rng.uniform(size=n) ** power
+    r = stats.kstest(u, "uniform")
+    d = r.statistic
+    exact = (n <= 140 and n * d * d <= 0.754693) or (n > 140 and n * d ** 1.5 <= 1.4)
+    ks_cases.append({"sample": f(u), "statistic": f(d)[0], "pvalue": f(r.pvalue)[0],
+                     "scipy_exact_matrix": bool(exact)})
+data = json.loads(OUT.read_text())
+data["kstest_uniform"] = ks_cases
+OUT.write_text(json.dumps(data, indent=1) + "\n")
+print("added kstest cases")
