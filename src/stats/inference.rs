@@ -64,32 +64,6 @@ pub fn benjamini_hochberg(p: &[f64]) -> Result<Vec<f64>, StatsError> {
     Ok(adjusted)
 }
 
-#[cfg(test)]
-mod tests {
-    use super::*;
-
-    #[test]
-    fn permutation_p_counts_the_observed_value() {
-        let null = [0.1, -0.5, 0.3, 2.0];
-        assert_eq!(permutation_p_value(1.0, &null, Alternative::TwoSided).unwrap(), 2.0 / 5.0);
-        assert_eq!(permutation_p_value(1.0, &null, Alternative::Less).unwrap(), 4.0 / 5.0);
-        assert_eq!(permutation_p_value(9.0, &null, Alternative::Greater).unwrap(), 1.0 / 5.0);
-        assert!(permutation_p_value(1.0, &[f64::NAN], Alternative::TwoSided).is_err());
-    }
-
-    #[test]
-    fn bh_worked_example() {
-        // Hand computation from the definition: m = 4, sorted p = 0.01, 0.02, 0.03, 0.5
-        // -> 0.04, 0.04, 0.04, 0.5.
-        let adj = benjamini_hochberg(&[0.5, 0.01, 0.03, 0.02]).unwrap();
-        let want = [0.5, 0.04, 0.04, 0.04];
-        for (a, w) in adj.iter().zip(want) {
-            assert!((a - w).abs() < 1e-15, "{adj:?}");
-        }
-        assert!(benjamini_hochberg(&[f64::NAN]).is_err());
-    }
-}
-
 /// One-sample Kolmogorov–Smirnov test of `sample` against U(0, 1), as used
 /// to check that p-values are calibrated.
 ///
@@ -211,4 +185,38 @@ fn kolmogorov_cdf_exact(n: usize, d: f64) -> f64 {
     // n!/n^n via the log-gamma function.
     let log_prefactor = statrs::function::gamma::ln_gamma(nf + 1.0) - nf * nf.ln();
     (log_prefactor + entry.ln() + log_scale).exp().clamp(0.0, 1.0)
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+
+    #[test]
+    fn permutation_p_counts_the_observed_value() {
+        let null = [0.1, -0.5, 0.3, 2.0];
+        assert_eq!(permutation_p_value(1.0, &null, Alternative::TwoSided).unwrap(), 2.0 / 5.0);
+        assert_eq!(permutation_p_value(1.0, &null, Alternative::Less).unwrap(), 4.0 / 5.0);
+        assert_eq!(permutation_p_value(9.0, &null, Alternative::Greater).unwrap(), 1.0 / 5.0);
+        assert!(permutation_p_value(1.0, &[f64::NAN], Alternative::TwoSided).is_err());
+    }
+
+    #[test]
+    fn bh_worked_example() {
+        // Hand computation from the definition: m = 4, sorted p = 0.01, 0.02, 0.03, 0.5
+        // -> 0.04, 0.04, 0.04, 0.5.
+        let adj = benjamini_hochberg(&[0.5, 0.01, 0.03, 0.02]).unwrap();
+        let want = [0.5, 0.04, 0.04, 0.04];
+        for (a, w) in adj.iter().zip(want) {
+            assert!((a - w).abs() < 1e-15, "{adj:?}");
+        }
+        assert!(benjamini_hochberg(&[f64::NAN]).is_err());
+    }
+
+    #[test]
+    fn ks_single_observation_closed_form() {
+        // n = 1: D = max(u, 1 - u) and P(D_1 >= d) = 2(1 - d) for d >= 1/2 (direct from the definition).
+        let (d, p) = ks_uniform(&[0.3]).unwrap();
+        assert!((d - 0.7).abs() < 1e-15);
+        assert!((p - 0.6).abs() < 1e-12, "{p}");
+    }
 }
