@@ -19,6 +19,7 @@
 //!   hierarchical distance and timescale shifts, per-subject summaries.
 //! * [`stats`]: correlations, permutation p-values, FDR, network nulls.
 //! * [`cohort`]: participant lists and runs over many subjects.
+//! * [`report`]: HTML reports with SVG figures.
 //!
 //! This is research software. Its results are not for clinical decisions.
 
@@ -29,6 +30,7 @@ pub mod control;
 pub mod hierarchy;
 pub mod io;
 pub mod link;
+pub mod report;
 pub mod stats;
 pub mod timescale;
 
