@@ -58,9 +58,26 @@ fn matlab_file_is_listed_in_matlab_shapes() {
     let text: Vec<String> = items.iter().map(ToString::to_string).collect();
     assert_eq!(
         text,
-        ["SC (3×4 float64)", "W (4×3 sparse double)", "counts (2×5 int32)", "tau (6×1 float64)"],
+        [
+            "SC (3×4 float64)",
+            "W (4×3 sparse double)",
+            "counts (2×5 int32)",
+            "e (0×0 empty)",
+            "mask (1×4 logical)",
+            "name (1×3 char)",
+            "s/x (2×2 float64)",
+            "tau (6×1 float64)"
+        ],
         "{text:?}"
     );
+    let e = read_array(&spec("matlab_v73.mat:name")).unwrap_err().to_string();
+    assert!(e.contains("variable `name` holds char values; expected numbers"), "{e}");
+    let e = read_array(&spec("matlab_v73.mat:e")).unwrap_err().to_string();
+    assert!(e.contains("variable `e` holds empty values"), "{e}");
+    let e = read_array(&spec("matlab_v73.mat:nope")).unwrap_err().to_string();
+    assert!(e.contains("no variable `nope`; found: SC (3×4 float64), W (4×3 sparse double)"), "{e}");
+    // A leading slash is accepted for MATLAB variables too.
+    assert_eq!(read_array(&spec("matlab_v73.mat:/SC")).unwrap().data.shape(), &[3, 4]);
     // Without a key the file is ambiguous, and the message lists the variables.
     let e = read_array(&spec("matlab_v73.mat")).unwrap_err();
     assert!(matches!(e, IoError::KeyNeeded { kind: "variable", .. }), "{e}");

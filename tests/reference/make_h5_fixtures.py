@@ -181,6 +181,8 @@ def fixtures():
     col = rng.standard_normal((6, 1))  # MATLAB column vector 6x1
     dense = np.zeros((4, 3))
     dense[0, 0], dense[2, 0], dense[1, 2], dense[3, 2] = 1.5, -2.0, 3.25, 4.0
+    mask = np.array([[True, False, False, True]])
+    field = np.array([[1.0, 2.0], [3.0, 4.0]])
     with h5py.File(OUT / name, "w", userblock_size=512, libver="earliest") as f:
         for var, arr, cls in (("SC", sc, "double"), ("counts", ints, "int32"), ("tau", col, "double")):
             d = f.create_dataset(var, data=np.ascontiguousarray(arr.T))
@@ -198,6 +200,21 @@ def fixtures():
         g.create_dataset("data", data=data)
         g.create_dataset("ir", data=ir)
         g.create_dataset("jc", data=jc)
+        # logical 1x4 row (uint8), char 'abc' (uint16 codes), a struct with a
+        # 2x2 field, and an empty double (MATLAB stores its dims as data).
+        d = f.create_dataset("mask", data=mask.T.astype(np.uint8))
+        d.attrs["MATLAB_class"] = np.bytes_("logical")
+        d.attrs["MATLAB_int_decode"] = np.int32(1)
+        d = f.create_dataset("name", data=np.array([[ord(c)] for c in "abc"], dtype=np.uint16))
+        d.attrs["MATLAB_class"] = np.bytes_("char")
+        d.attrs["MATLAB_int_decode"] = np.int32(2)
+        st = f.create_group("s")
+        st.attrs["MATLAB_class"] = np.bytes_("struct")
+        d = st.create_dataset("x", data=np.ascontiguousarray(field.T))
+        d.attrs["MATLAB_class"] = np.bytes_("double")
+        d = f.create_dataset("e", data=np.array([0, 0], dtype=np.uint64))
+        d.attrs["MATLAB_class"] = np.bytes_("double")
+        d.attrs["MATLAB_empty"] = np.uint8(1)
     header = b"MATLAB 7.3 MAT-file, Platform: GLNXA64, Created on: Tue Dec  1 00:00:00 2026 HDF5 schema 1.00 ."
     block = bytearray(512)
     block[: len(header)] = header
@@ -211,6 +228,8 @@ def fixtures():
     record(expected, name, "counts", ints, "int32")
     record(expected, name, "tau", col, "float64")
     record(expected, name, "W", dense, "float64", sparse=True)
+    record(expected, name, "mask", mask, "bool")
+    record(expected, name, "s/x", field, "float64")
 
     # 6. libver="latest": a chunked dataset with two unlimited dimensions gets
     #    a version-2 B-tree chunk index, which hdf5-pure 0.47.0 cannot read.
