@@ -500,14 +500,9 @@ fn read_values(path: &Path, name: &str, ds: &h5::Dataset) -> Result<(Vec<f64>, O
             (v.into_iter().map(|x| x as f64).collect(), rounded(big))
         }
         D::Enum(ref names) if is_bool_enum(names) => {
-            let raw = ds.read_raw().map_err(e)?;
-            let n: usize = ds.shape().map_err(e)?.iter().map(|&d| d as usize).product();
-            if n == 0 || raw.len() % n != 0 {
-                return Err(IoError::format(path, format!("dataset `{name}`: malformed boolean data")));
-            }
-            // Little-endian enum base: the value is in the first byte.
-            let width = raw.len() / n;
-            (raw.chunks(width).map(|c| if c[0] != 0 { 1.0 } else { 0.0 }).collect(), None)
+            // hdf5-pure decodes an enum through its integer base: FALSE = 0, TRUE = 1.
+            let v = ds.read_i64().map_err(e)?;
+            (v.into_iter().map(|x| if x != 0 { 1.0 } else { 0.0 }).collect(), None)
         }
         other => {
             return Err(IoError::format(
@@ -559,7 +554,7 @@ fn read_sparse(path: &Path, name: &str, g: &h5::Group) -> Result<ArrayD<f64>, Io
     for j in 0..cols {
         let (a, b) = (jc[j] as usize, jc[j + 1] as usize);
         if a > b || b > nnz {
-            return Err(bad(format!("`jc` is not non-decreasing at column {j}")));
+            return Err(bad(format!("`jc` must be non-decreasing up to {nnz}; column {j} spans {a}..{b}")));
         }
         for k in a..b {
             let i = ir[k] as usize;
@@ -1096,6 +1091,66 @@ mod tests {
         let e = write_file(&p, &root).unwrap_err().to_string();
         assert!(e.contains("two members are called `x`"), "{e}");
         assert_eq!(std::fs::read_dir(dir.path()).unwrap().count(), 0);
+    }
+
+    /// A `.mat` image with one sparse variable `W` built from raw parts.
+    fn sparse_file(dir: &Path, rows: u64, jc: &[u64], ir: &[u64], data: &[f64]) -> std::path::PathBuf {
+        let mut fb = h5::FileBuilder::new();
+        fb.with_userblock(512);
+        let mut g = fb.create_group("W");
+        g.set_attr("MATLAB_class", h5::AttrValue::AsciiString("double".into()));
+        g.set_attr("MATLAB_sparse", h5::AttrValue::U64(rows));
+        g.create_dataset("jc").with_u64_data(jc);
+        g.create_dataset("ir").with_u64_data(ir);
+        g.create_dataset("data").with_f64_data(data);
+        fb.add_group(g.finish());
+        let p = dir.join("w.mat");
+        std::fs::write(&p, fb.finish().unwrap()).unwrap();
+        p
+    }
+
+    #[test]
+    fn sparse_matrix_expands_in_column_order() {
+        // 2×3 [[0, 5, 0], [7, 0, 9]] in CSC: jc = [0, 1, 2, 3], ir = [1, 0, 1].
+        let dir = tempfile::tempdir().unwrap();
+        let p = sparse_file(dir.path(), 2, &[0, 1, 2, 3], &[1, 0, 1], &[7.0, 5.0, 9.0]);
+        let a = read(&InputSpec::new(&p, None)).unwrap();
+        assert!(a.sparse);
+        assert_eq!(a.data.shape(), &[2, 3]);
+        assert_eq!(a.data.iter().copied().collect::<Vec<_>>(), vec![0.0, 5.0, 0.0, 7.0, 0.0, 9.0]);
+    }
+
+    #[test]
+    fn malformed_sparse_matrices_are_errors_not_panics() {
+        let dir = tempfile::tempdir().unwrap();
+        type Case<'a> = (u64, &'a [u64], &'a [u64], &'a [f64], &'a str);
+        let cases: [Case; 4] = [
+            (2, &[0, 1, 5], &[0], &[1.0], "`jc` ends at 5 but `ir` has 1"),
+            (2, &[0, 1, 1], &[4], &[1.0], "row index 4 in `ir` is outside 0..2"),
+            (2, &[0, 2, 1], &[0], &[1.0], "`jc` must be non-decreasing up to 1; column 0 spans 0..2"),
+            (1 << 40, &[0, 0, 0], &[], &[], "too large to expand"),
+        ];
+        for (rows, jc, ir, data, want) in cases {
+            let p = sparse_file(dir.path(), rows, jc, ir, data);
+            let e = read(&InputSpec::new(&p, Some("W"))).unwrap_err().to_string();
+            assert!(e.contains("sparse variable `W`") && e.contains(want), "{e}");
+        }
+    }
+
+    #[test]
+    fn listing_names_shape_and_type() {
+        let info = H5DatasetInfo {
+            path: "/a".into(),
+            shape: vec![2, 3],
+            dtype: "int32".into(),
+            stored: Some(StoredType::Int32),
+            sparse: false,
+        };
+        assert_eq!(info.to_string(), "/a (2×3 int32)");
+        let scalar = H5DatasetInfo { shape: vec![], ..info };
+        assert_eq!(scalar.to_string(), "/a (scalar int32)");
+        assert_eq!(normalise_key("grp/x/", false), "/grp/x");
+        assert_eq!(normalise_key("/SC", true), "SC");
     }
 
     #[test]
