@@ -337,12 +337,19 @@ pub fn list_datasets(path: &Path) -> Result<Vec<H5DatasetInfo>, IoError> {
     inventory(path, &file)
 }
 
+/// At most this many datasets are named in one error message.
+const MAX_LISTED: usize = 40;
+
+/// Datasets for an error message: comma separated, cut after [`MAX_LISTED`].
 fn listing(items: &[&H5DatasetInfo]) -> String {
     if items.is_empty() {
-        "nothing".into()
-    } else {
-        items.iter().map(|i| i.to_string()).collect::<Vec<_>>().join(", ")
+        return "nothing".into();
     }
+    let mut text = items.iter().take(MAX_LISTED).map(|i| i.to_string()).collect::<Vec<_>>().join(", ");
+    if items.len() > MAX_LISTED {
+        text.push_str(&format!(" and {} more", items.len() - MAX_LISTED));
+    }
+    text
 }
 
 /// Read a dataset `file.h5:/group/name` (or a MATLAB v7.3 variable
@@ -1135,6 +1142,23 @@ mod tests {
             let e = read(&InputSpec::new(&p, Some("W"))).unwrap_err().to_string();
             assert!(e.contains("sparse variable `W`") && e.contains(want), "{e}");
         }
+    }
+
+    #[test]
+    fn long_listings_are_cut() {
+        let items: Vec<H5DatasetInfo> = (0..45)
+            .map(|i| H5DatasetInfo {
+                path: format!("/d{i}"),
+                shape: vec![1],
+                dtype: "float64".into(),
+                stored: Some(StoredType::Float64),
+                sparse: false,
+            })
+            .collect();
+        let text = listing(&items.iter().collect::<Vec<_>>());
+        assert!(text.starts_with("/d0 (1 float64), /d1 (1 float64)"), "{text}");
+        assert!(text.contains("/d39 (1 float64) and 5 more"), "{text}");
+        assert!(!text.contains("/d40 "), "{text}");
     }
 
     #[test]
