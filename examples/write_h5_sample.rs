@@ -1,13 +1,15 @@
-//! Write `tests/data/h5/written_by_hierax.h5`, the file the reference script
+//! Write `tests/data/h5/written_by_hierax.h5` (default layout: HDF5 1.10
+//! format, large datasets compressed) and `written_by_hierax_v18.h5` (HDF5
+//! 1.8 format, uncompressed), the files the reference script
 //! `tests/reference/make_h5_fixtures.py readback` opens with h5py to check
 //! that what hierax writes is what h5py reads. All values are invented.
 //!
-//! Run: `cargo run --example write_h5_sample [OUT.h5]`
+//! Run: `cargo run --example write_h5_sample [OUT_DIR]`
 //!
 //! The tree is built by [`sample_tree`], which `tests/io_h5.rs` includes too,
 //! so the test compares h5py's reading against exactly what was meant.
 
-use hierax::io::hdf5::{write_file, AttrValue, DataValue, Group};
+use hierax::io::hdf5::{write_file, write_file_with, AttrValue, DataValue, Group, WriteOptions};
 use hierax::io::provenance::{InputRecord, Provenance};
 use hierax::io::table::{Column, Table};
 use ndarray::Array2;
@@ -80,8 +82,20 @@ pub fn sample_tree() -> Group {
 
 #[allow(dead_code)]
 fn main() -> Result<(), Box<dyn std::error::Error>> {
-    let out = std::env::args().nth(1).unwrap_or_else(|| "tests/data/h5/written_by_hierax.h5".into());
-    write_file(std::path::Path::new(&out), &sample_tree())?;
-    println!("wrote {out}");
+    let dir = std::path::PathBuf::from(std::env::args().nth(1).unwrap_or_else(|| "tests/data/h5".into()));
+    let tree = sample_tree();
+    let out = dir.join("written_by_hierax.h5");
+    write_file(&out, &tree)?;
+    println!("wrote {}", out.display());
+    let out = dir.join("written_by_hierax_v18.h5");
+    write_file_with(&out, &tree, &v18_options())?;
+    println!("wrote {}", out.display());
     Ok(())
+}
+
+/// The options of `written_by_hierax_v18.h5`.
+pub fn v18_options() -> WriteOptions {
+    let mut o = WriteOptions::default();
+    o.hdf5_1_8_format = true;
+    o
 }

@@ -15,11 +15,12 @@ Two jobs, both writing into tests/data/h5/:
    record every numeric dataset in expected.json. Floats are recorded as the
    hex bit pattern of their float64 value, so the Rust test compares bit for
    bit without trusting any decimal parser.
-2. ``readback``: open written_by_hierax.h5 (made by
-   ``cargo run --example write_h5_sample``) with h5py, read every dataset and
-   attribute, and record what h5py saw in h5py_readback.json.
+2. ``readback``: open written_by_hierax.h5 and written_by_hierax_v18.h5
+   (made by ``cargo run --example write_h5_sample``) with h5py, read every
+   dataset and attribute, and record what h5py saw in h5py_readback.json and
+   h5py_readback_v18.json.
 
-With no argument both run (readback only when written_by_hierax.h5 exists).
+With no argument both run (readback only for the files that exist).
 All data are invented (seeded numpy generator); nothing comes from a study.
 """
 
@@ -276,8 +277,8 @@ def describe_attr(v):
     return {"py": type(v).__name__, "value": repr(v)}
 
 
-def readback():
-    path = OUT / "written_by_hierax.h5"
+def readback(stem):
+    path = OUT / f"{stem}.h5"
     objects = []
 
     def visit(name, obj):
@@ -302,6 +303,7 @@ def readback():
         objects.append(entry)
 
     with h5py.File(path, "r") as f:
+        superblock = f.id.get_create_plist().get_version()[0]
         visit("", f)
         f.visititems(visit)
     objects.sort(key=lambda e: e["path"])
@@ -309,10 +311,12 @@ def readback():
         "generator": "tests/reference/make_h5_fixtures.py readback",
         "h5py": h5py.__version__,
         "hdf5": h5py.version.hdf5_version,
-        "file": "written_by_hierax.h5",
+        "file": path.name,
+        "superblock_version": superblock,
         "objects": objects,
     }
-    with open(OUT / "h5py_readback.json", "w") as fh:
+    suffix = stem.removeprefix("written_by_hierax")
+    with open(OUT / f"h5py_readback{suffix}.json", "w") as fh:
         json.dump(out, fh, indent=1, ensure_ascii=False)
         fh.write("\n")
 
@@ -322,7 +326,8 @@ if __name__ == "__main__":
     if "fixtures" in jobs:
         fixtures()
     if "readback" in jobs:
-        if (OUT / "written_by_hierax.h5").exists():
-            readback()
-        elif sys.argv[1:]:
-            sys.exit("tests/data/h5/written_by_hierax.h5 is missing: run `cargo run --example write_h5_sample` first")
+        for stem in ("written_by_hierax", "written_by_hierax_v18"):
+            if (OUT / f"{stem}.h5").exists():
+                readback(stem)
+            elif sys.argv[1:]:
+                sys.exit(f"tests/data/h5/{stem}.h5 is missing: run `cargo run --example write_h5_sample` first")
