@@ -326,3 +326,17 @@ fn failed_write_leaves_no_file_and_keeps_the_old_one() {
     names.sort();
     assert_eq!(names, ["out.h5", "taken.h5"]);
 }
+
+#[test]
+fn missing_and_foreign_files_are_named_in_one_line() {
+    let dir = tempfile::tempdir().unwrap();
+    let missing = dir.path().join("none.h5");
+    let e = read_array(&InputSpec::new(&missing, Some("/x"))).unwrap_err();
+    assert!(matches!(e, IoError::Os { .. }), "{e}");
+    assert!(e.to_string().contains("none.h5: cannot read"), "{e}");
+    let text = dir.path().join("text.h5");
+    std::fs::write(&text, "a,b\n1,2\n").unwrap();
+    let e = read_array(&InputSpec::new(&text, None)).unwrap_err().to_string();
+    assert!(e.contains("text.h5: not a readable HDF5 file"), "{e}");
+    assert!(!e.contains('\n'), "{e}");
+}

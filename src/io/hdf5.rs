@@ -44,7 +44,10 @@
 //!   `h5read` returns the transpose (it is column-major), as it does for
 //!   every C-order HDF5 file;
 //! - text (datasets and attributes) is variable-length UTF-8, which h5py
-//!   decodes to `str` and MATLAB's `h5read`/`h5readatt` to `char`/cell;
+//!   decodes to `str` (fixed-length text would arrive as `bytes`) and
+//!   MATLAB's `h5read`/`h5readatt` to `char`/cell. `hdf5-pure` gives each
+//!   text attribute or dataset its own global-heap collection of at least
+//!   4 KiB, so each costs about 4 KiB of file;
 //! - numeric datasets of at least [`WriteOptions::compress_min_bytes`] bytes
 //!   are chunked and compressed with shuffle + deflate (gzip), built-in HDF5
 //!   filters every reader has. `hdf5-pure` writes chunked datasets only in the
@@ -149,10 +152,14 @@ fn is_matlab(path: &Path) -> bool {
     path.extension().and_then(|e| e.to_str()).is_some_and(|e| e.eq_ignore_ascii_case("mat"))
 }
 
+/// Open for reading. The streaming backend fetches metadata and the chunks of
+/// the one dataset asked for on demand, so reading one dataset of a large
+/// file does not hold the whole file in memory.
 fn open(path: &Path) -> Result<h5::File, IoError> {
-    let bytes = super::read_bytes(path)?;
-    h5::File::from_bytes(bytes)
-        .map_err(|e| IoError::format(path, format!("not a readable HDF5 file: {}", one_line(&e))))
+    h5::File::open_streaming(path).map_err(|e| match e {
+        h5::Error::Io(io) => IoError::os(path, "cannot read", io),
+        other => IoError::format(path, format!("not a readable HDF5 file: {}", one_line(&other))),
+    })
 }
 
 /// An `hdf5-pure` error as one line.
