@@ -2,5 +2,6 @@
 
 mod bad_input;
 mod cli;
+mod io_h5;
 mod stats;
 mod util;
