@@ -749,7 +749,9 @@ fn scan(path: &Path, bytes: &[u8]) -> Result<(Endian, Vec<Entry>), IoError> {
     let mut at = HEADER_LEN;
     while at < bytes.len() {
         let tag = read_tag(file, at).map_err(in_file)?;
-        let next = tag.data_at + tag.nbytes;
+        // Top-level elements are not padded after miCOMPRESSED data (MATLAB and
+        // scipy both write the next tag straight after the stream).
+        let next = if tag.small { tag.next() } else { tag.data_at + tag.nbytes };
         let is_subsystem = subsys == Some(at);
         match tag.dtype {
             MI_MATRIX if !tag.small && tag.nbytes > 0 && !is_subsystem => {
@@ -1164,6 +1166,36 @@ mod tests {
         let m = w.matrix(6, 0, &[2, 2], "x", &[w.element(MI_DOUBLE, &w.f64s(&[1.0, 2.0, 3.0]), true)]);
         let e = decode_variable(Bytes { data: &m, endian: Endian::Little }, 8).unwrap_err();
         assert!(e.what.contains("real part holds 3 values but dimensions [2, 2] need 4"), "{}", e.what);
+    }
+
+    #[test]
+    fn compressed_header_and_truncated_stream() {
+        use std::io::Write;
+        let w = W(Endian::Little);
+        // A name longer than the inflated prefix forces the full-inflate path too.
+        for name in ["conn".to_string(), "n".repeat(HEADER_PREFIX + 10)] {
+            let m = w.matrix(12, 0, &[1, 2], &name, &[w.element(MI_INT32, &w.i32s(&[4, -5]), true)]);
+            let mut z = flate2::write::ZlibEncoder::new(Vec::new(), flate2::Compression::default());
+            z.write_all(&m).unwrap();
+            let stream = z.finish().unwrap();
+            let h = compressed_header(&stream, Endian::Little).ok().unwrap();
+            assert_eq!((h.class, h.dims.clone(), h.name.len()), (MatClass::Int32, vec![1, 2], name.len()));
+            let (buf, complete) = inflate(&stream, None).unwrap();
+            assert!(complete);
+            let (b, t) = inflated_matrix(&buf, Endian::Little, true).unwrap();
+            assert_eq!(decode_variable(b, t.data_at).unwrap().0, vec![4.0, -5.0]);
+            // A cut stream fails to inflate or inflates short; either way it is an error.
+            let cut = &stream[..stream.len() / 2];
+            match inflate(cut, None) {
+                Err(_) => {}
+                Ok((buf, _)) => {
+                    let e = inflated_matrix(&buf, Endian::Little, true)
+                        .and_then(|(b, t)| decode_variable(b, t.data_at))
+                        .unwrap_err();
+                    assert!(e.what.contains("needs"), "{}", e.what);
+                }
+            }
+        }
     }
 
     #[test]
