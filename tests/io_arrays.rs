@@ -85,6 +85,11 @@ fn every_fixture_matches_the_reference_bit_for_bit() {
         if la.sparse != f.sparse {
             failures.push(format!("{label}: sparse {}, expected {}", la.sparse, f.sparse));
         }
+        // Row-major in memory too, so a caller taking the raw buffer gets the
+        // logical order (LoadedArray's documented contract).
+        if !la.data.is_standard_layout() {
+            failures.push(format!("{label}: not in row-major (standard) memory layout"));
+        }
         assert_eq!(la.data.len(), f.values.len(), "{label}");
         // `iter()` walks the logical row-major order whatever the memory layout.
         for (i, (got, want)) in la.data.iter().zip(&f.values).enumerate() {
