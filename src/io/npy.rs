@@ -78,6 +78,9 @@ fn describe(e: &ReadNpyError) -> String {
 }
 
 fn finish(spec: &InputSpec, data: ArrayD<f64>, stored: StoredType) -> LoadedArray {
+    // A Fortran-order file decodes to a column-major buffer; store it row-major
+    // as `LoadedArray` promises, so raw-buffer users see the logical order.
+    let data = if data.is_standard_layout() { data } else { data.as_standard_layout().into_owned() };
     let mut la = LoadedArray::new(spec.clone(), data, stored);
     if matches!(stored, StoredType::Int64 | StoredType::Uint64)
         && la.data.iter().any(|v| v.abs() > EXACT_LIMIT)
