@@ -21,3 +21,22 @@ fn inspect_unknown_extension_is_one_line_and_exit_2() {
     assert_eq!(err.lines().count(), 1, "{err}");
     assert!(err.contains("unknown file type `.xlsx`"), "{err}");
 }
+
+#[test]
+fn inspect_lists_the_variables_of_a_mat_file_without_a_key() {
+    let p = crate::util::data("arrays/mixed.mat");
+    let out = run(hierax().arg("inspect").arg(&p));
+    assert!(out.status.success());
+    let text = String::from_utf8(out.stdout).unwrap();
+    assert!(text.contains("entries; name one as"), "{text}");
+    assert!(text.contains("(cell)"), "{text}");
+}
+
+#[test]
+fn inspect_lists_the_datasets_of_an_h5_file_without_a_key() {
+    let p = crate::util::data("h5/default.h5");
+    let out = run(hierax().arg("inspect").arg(&p));
+    assert!(out.status.success());
+    let text = String::from_utf8(out.stdout).unwrap();
+    assert!(text.contains("entries; name one as") && text.contains("float64"), "{text}");
+}

@@ -3,7 +3,7 @@
 use anyhow::Context;
 use clap::Args;
 use hierax::io::validate::{self, ConnectomeRules, Orientation};
-use hierax::io::{read_array, InputSpec, LoadedArray};
+use hierax::io::{hdf5, mat, read_array, Format, InputSpec, LoadedArray};
 use std::process::ExitCode;
 
 /// Read each input and print what hierax understood: shape, stored type,
@@ -155,9 +155,53 @@ fn preview(names: &[String]) -> String {
     }
 }
 
+/// For an HDF5 or MAT file named without a key, the entries it holds, one
+/// line each; `None` for other inputs.
+fn contents(spec: &InputSpec) -> Result<Option<Vec<String>>, hierax::io::IoError> {
+    if spec.key.is_some() {
+        return Ok(None);
+    }
+    match spec.format()? {
+        Format::Hdf5 => Ok(Some(hdf5::list_datasets(&spec.path)?.iter().map(|d| d.to_string()).collect())),
+        Format::Mat if hdf5::is_hdf5_file(&spec.path)? => {
+            Ok(Some(hdf5::list_datasets(&spec.path)?.iter().map(|d| d.to_string()).collect()))
+        }
+        Format::Mat => Ok(Some(mat::list_variables(&spec.path)?.iter().map(|v| v.to_string()).collect())),
+        _ => Ok(None),
+    }
+}
+
 pub fn run(args: InspectArgs) -> anyhow::Result<ExitCode> {
     let mut failed = 0usize;
     for raw in &args.inputs {
+        // A container named without a key: list what it holds unless it holds exactly one array.
+        if let Ok(spec) = InputSpec::parse(raw) {
+            match contents(&spec) {
+                Ok(Some(entries)) if entries.len() != 1 && args.role.is_none() => {
+                    if args.json {
+                        let v = serde_json::json!({ "input": spec.to_string(), "contents": entries });
+                        println!("{}", serde_json::to_string(&v).context("cannot encode JSON")?);
+                    } else {
+                        println!("{spec}");
+                        println!(
+                            "  holds       {} entries; name one as {}:KEY",
+                            entries.len(),
+                            spec.path.display()
+                        );
+                        for e in &entries {
+                            println!("    {e}");
+                        }
+                    }
+                    continue;
+                }
+                Ok(_) => {}
+                Err(e) => {
+                    eprintln!("hierax: error: {e}");
+                    failed += 1;
+                    continue;
+                }
+            }
+        }
         let result = InputSpec::parse(raw).and_then(|spec| read_array(&spec));
         let la = match result {
             Ok(la) => la,

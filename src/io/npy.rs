@@ -83,9 +83,11 @@ fn finish(spec: &InputSpec, data: ArrayD<f64>, stored: StoredType) -> LoadedArra
     let data = if data.is_standard_layout() { data } else { data.as_standard_layout().into_owned() };
     let mut la = LoadedArray::new(spec.clone(), data, stored);
     if matches!(stored, StoredType::Int64 | StoredType::Uint64)
-        && la.data.iter().any(|v| v.abs() > EXACT_LIMIT)
+        && la.data.iter().any(|v| v.abs() >= EXACT_LIMIT)
     {
-        la.notes.push("integers beyond 2^53 lost precision when converted to float64".into());
+        // Checked after conversion, so values of magnitude 2^53 or more are flagged: some of them
+        // (those that are odd) rounded when they became float64.
+        la.notes.push("integers of magnitude 2^53 or more may have lost precision as float64".into());
     }
     la
 }
