@@ -90,7 +90,7 @@ def main():
 
     tr = meta["repetition_time_s"]
     per_dist = {d: [] for d in range(1, N_BINS)}
-    mean_asym, rel_asym, frac_bu = [], [], []
+    mean_asym, rel_asym, frac_bu, mean_e = [], [], [], []
     max_identity_err = 0.0
     rho_raw, rho_clean, censored = [], [], []
     for s, p in enumerate(parts):
@@ -113,6 +113,7 @@ def main():
         mean_asym.append(np.mean(de[iu]))
         rel_asym.append(np.mean(de[iu] / (e[iu] + e.T[iu])))
         frac_bu.append(np.mean(de[iu] < 0))
+        mean_e.append(np.mean(e[~np.eye(N_BINS, dtype=bool)]))
 
         bold = np.load(os.path.join(ROOT, sid, f"{sid}_bold.npy"))
         conf = read_tsv(os.path.join(ROOT, sid, f"{sid}_confounds.tsv"))
@@ -146,7 +147,8 @@ def main():
     fit = stats.linregress(ages, mean_asym)
     print(f"Spearman(age, mean dE) = {ra.statistic:.3f} (p = {ra.pvalue:.1e}); "
           f"OLS slope {fit.slope:.4f} per year (mean dE {mean_asym.mean():.3f})")
-    print(f"Spearman(age, mean dE/(E_ij+E_ji)) = {rr.statistic:.3f} (p = {rr.pvalue:.1e})")
+    print(f"Spearman(age, mean dE/(E_ij+E_ji)) = {rr.statistic:.3f} (p = {rr.pvalue:.1e}); "
+          f"mean relative asymmetry {rel_asym.mean():.4f}, mean energy {np.mean(mean_e):.2f}")
     young, old = ages < np.median(ages), ages >= np.median(ages)
     print(f"mean dE, younger half {mean_asym[young].mean():.3f} vs older half {mean_asym[old].mean():.3f}")
 
