@@ -152,11 +152,20 @@ def main():
     young, old = ages < np.median(ages), ages >= np.median(ages)
     print(f"mean dE, younger half {mean_asym[young].mean():.3f} vs older half {mean_asym[old].mean():.3f}")
 
+    # The planted effects must be there (exit non-zero otherwise).
+    means = [np.mean(v) for v in per_dist.values()]
+    assert max_identity_err < 1e-10, max_identity_err
+    assert all(m < 0 for m in means), "bottom-up transitions must be cheaper at every distance"
+    assert all(b < a for a, b in zip(means, means[1:])), "asymmetry must grow with bin distance"
+    assert ra.statistic > 0 and ra.pvalue < 0.01, "asymmetry must shrink with age"
+
     print(f"\ntimescales: Spearman(hierarchy, lag-1 ACF) per participant, mean over participants")
     print(f"  raw series:                        {np.mean(rho_raw):.3f} (min {np.min(rho_raw):.3f})")
     print(f"  confound-regressed and censored:   {np.mean(rho_clean):.3f} (min {np.min(rho_clean):.3f})")
     print(f"  censored frames (FD > {FD_THRESHOLD_MM} mm and next): mean {np.mean(censored):.1f}, "
           f"Spearman with age {stats.spearmanr(ages, censored).statistic:.3f}")
+    assert np.mean(rho_clean) > np.mean(rho_raw) > 0, "timescale gradient, clearer after cleaning"
+    print("\nall planted effects present")
 
 
 def lag1_acf(y, keep):
