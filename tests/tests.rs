@@ -2,6 +2,7 @@
 
 mod bad_input;
 mod cli;
+mod demo_data;
 mod io_arrays;
 mod io_h5;
 mod stats;
