@@ -351,3 +351,37 @@ fn surrogates_command_writes_csv_and_npy() {
     let header = std::fs::read_to_string(o.join("surrogates.csv")).unwrap();
     assert!(header.starts_with("region,surrogate_1,"), "{header}");
 }
+
+#[test]
+fn gradient_command_writes_components_and_rejects_a_short_reference() {
+    let dir = tempfile::tempdir().unwrap();
+    // A chain-like affinity source of 12 regions (invented).
+    let n = 12;
+    let body: String = (0..n)
+        .map(|i| {
+            (0..n)
+                .map(|j| format!("{}", (-((i as f64 - j as f64).powi(2)) / 6.0).exp()))
+                .collect::<Vec<_>>()
+                .join(",")
+                + "\n"
+        })
+        .collect();
+    let src = write(dir.path(), "fc.csv", &body);
+    let o = dir.path().join("o");
+    let out = run(hierax()
+        .arg("gradient")
+        .arg(&src)
+        .args(["--components", "2", "--sparsity", "0.5", "--out"])
+        .arg(&o));
+    assert!(out.status.success());
+    let eig = std::fs::read_to_string(o.join("eigenvalues.csv")).unwrap();
+    assert!(eig.starts_with("component,eigenvalue,scaled_eigenvalue,explained_variance,flipped\n"), "{eig}");
+    assert_eq!(std::fs::read_to_string(o.join("gradients.csv")).unwrap().lines().count(), n + 1);
+    let short = write(dir.path(), "short.csv", "1\n2\n3\n");
+    let s = src.to_str().unwrap();
+    assert_usage_error(
+        &["gradient", s, "--align-to", short.to_str().unwrap()],
+        dir.path(),
+        "expected one value for each of 12 regions",
+    );
+}
