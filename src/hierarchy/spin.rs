@@ -225,8 +225,9 @@ fn apply(r: &Rotation, p: &[f64; 3]) -> [f64; 3] {
 /// Returns `a` with `a[j] = i`: rotated parcel `i` takes original place `j`.
 /// Furthest-first greedy on similarity `s_ij = rotated_i · original_j`
 /// (see the module documentation). The nearest unassigned original of each
-/// rotated parcel is kept and recomputed lazily only when it has been taken,
-/// which keeps one assignment near O(n²).
+/// rotated parcel is kept up to date, rescanning a row only when its nearest
+/// parcel is taken, which keeps one assignment near O(n²) instead of the
+/// naive O(n³) (checked against the naive loop in the tests).
 pub fn assign_one_to_one(rotated: &[[f64; 3]], original: &[[f64; 3]]) -> Vec<usize> {
     let n = rotated.len();
     let mut sim = vec![0.0f64; n * n];
@@ -251,26 +252,24 @@ pub fn assign_one_to_one(rotated: &[[f64; 3]], original: &[[f64; 3]]) -> Vec<usi
     let mut near: Vec<(usize, f64)> = (0..n).map(|i| nearest(i, &taken)).collect();
     let mut out = vec![usize::MAX; n];
     for _ in 0..n {
-        loop {
-            // The rotated parcel whose (recorded) nearest original is farthest.
-            let mut pick = usize::MAX;
-            let mut worst = f64::INFINITY;
-            for i in 0..n {
-                if !done[i] && near[i].1 < worst {
-                    worst = near[i].1;
-                    pick = i;
-                }
+        // The rotated parcel whose nearest unassigned original is farthest.
+        let mut pick = usize::MAX;
+        let mut worst = f64::INFINITY;
+        for i in 0..n {
+            if !done[i] && near[i].1 < worst {
+                worst = near[i].1;
+                pick = i;
             }
-            let (j, _) = near[pick];
-            if taken[j] {
-                // Stale: its true nearest is no nearer than recorded, so recompute and re-pick.
-                near[pick] = nearest(pick, &taken);
-                continue;
+        }
+        let (j, _) = near[pick];
+        taken[j] = true;
+        done[pick] = true;
+        out[j] = pick;
+        // Only parcels whose nearest was j have a new nearest: rescan those.
+        for i in 0..n {
+            if !done[i] && near[i].0 == j {
+                near[i] = nearest(i, &taken);
             }
-            taken[j] = true;
-            done[pick] = true;
-            out[j] = pick;
-            break;
         }
     }
     out
@@ -380,6 +379,47 @@ mod tests {
                     }
                 }
             }
+        }
+    }
+
+    /// Naive furthest-first greedy, O(n³): recompute every nearest each step.
+    fn assign_naive(rot: &[[f64; 3]], orig: &[[f64; 3]]) -> Vec<usize> {
+        let n = rot.len();
+        let dot = |a: &[f64; 3], b: &[f64; 3]| a[0] * b[0] + a[1] * b[1] + a[2] * b[2];
+        let (mut used_r, mut used_o) = (vec![false; n], vec![false; n]);
+        let mut out = vec![0; n];
+        for _ in 0..n {
+            let mut pick = (usize::MAX, usize::MAX, f64::INFINITY);
+            for i in (0..n).filter(|&i| !used_r[i]) {
+                let (j, s) = (0..n)
+                    .filter(|&j| !used_o[j])
+                    .map(|j| (j, dot(&rot[i], &orig[j])))
+                    .fold((usize::MAX, f64::NEG_INFINITY), |b, c| if c.1 > b.1 { c } else { b });
+                if s < pick.2 {
+                    pick = (i, j, s);
+                }
+            }
+            used_r[pick.0] = true;
+            used_o[pick.1] = true;
+            out[pick.1] = pick.0;
+        }
+        out
+    }
+
+    #[test]
+    fn lazy_assignment_equals_naive_greedy() {
+        let pts: Vec<[f64; 3]> = (0..80)
+            .map(|i| {
+                let z = 1.0 - 2.0 * (i as f64 + 0.5) / 80.0;
+                let r = (1.0 - z * z).sqrt();
+                let t = 2.399963229728653 * i as f64;
+                [r * t.cos(), r * t.sin(), z]
+            })
+            .collect();
+        for s in 0..20 {
+            let rot = random_rotation(&mut stream(3, s));
+            let rotated: Vec<[f64; 3]> = pts.iter().map(|p| apply(&rot, p)).collect();
+            assert_eq!(assign_one_to_one(&rotated, &pts), assign_naive(&rotated, &pts), "rotation {s}");
         }
     }
 

@@ -67,12 +67,37 @@ def diffusion_case(rng):
     return {"affinity_source": fc.tolist(), "sparsity": 0.9, "alpha": 0.5, "eigenvalues_descending": w.tolist()}
 
 
+def variogram_case(rng):
+    """Smoothed empirical variogram as documented in src/hierarchy/variogram.rs
+    (pairs up to the 25th percentile, numpy's default linear percentile, 25
+    distances, truncated Gaussian kernel, bandwidth 3 bin spacings)."""
+    pts = rng.uniform(size=(60, 2))
+    d = np.sqrt(((pts[:, None, :] - pts[None, :, :]) ** 2).sum(-1))
+    x = np.sin(3 * pts[:, 0]) + pts[:, 1] ** 2 + 0.1 * rng.normal(size=60)
+    iu = np.triu_indices(60, 1)
+    dist = d[iu]
+    cut = np.percentile(dist, 25)
+    keep = dist <= cut
+    dp, pi, pj = dist[keep], iu[0][keep], iu[1][keep]
+    h = np.linspace(dp.min(), cut, 25)
+    b = 3 * (h[1] - h[0])
+    g = 0.5 * (x[pi] - x[pj]) ** 2
+    out = []
+    for hh in h:
+        u = np.abs(dp - hh) / b
+        w = np.exp(-0.5 * (2.68 * u) ** 2)
+        w[u > 1] = 0
+        out.append((w * g).sum() / w.sum())
+    return {"distances": d.tolist(), "map": x.tolist(), "h": h.tolist(), "variogram": out}
+
+
 def main():
     rng = np.random.default_rng(20240605)
     OUT.mkdir(parents=True, exist_ok=True)
     meta = {"numpy": np.__version__, "scipy": scipy.__version__, "note": "invented data, seeded"}
     (OUT / "binning.json").write_text(json.dumps({"meta": meta, "cases": binning_cases(rng)}) + "\n")
     (OUT / "diffusion.json").write_text(json.dumps({"meta": meta, **diffusion_case(rng)}) + "\n")
+    (OUT / "variogram.json").write_text(json.dumps({"meta": meta, **variogram_case(rng)}) + "\n")
 
 
 if __name__ == "__main__":
