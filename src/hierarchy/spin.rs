@@ -237,40 +237,60 @@ pub fn assign_one_to_one(rotated: &[[f64; 3]], original: &[[f64; 3]]) -> Vec<usi
             *s = r[0] * o[0] + r[1] * o[1] + r[2] * o[2];
         }
     }
-    let mut taken = vec![false; n];
-    let mut done = vec![false; n];
-    let nearest = |i: usize, taken: &[bool]| -> (usize, f64) {
+    // Remaining rotated and original parcels are kept in compact lists (with
+    // the position of each original) so every scan shrinks as parcels are
+    // assigned. Ties go to the lower index, compared explicitly because the
+    // lists are not kept in index order.
+    let mut alive_o: Vec<usize> = (0..n).collect();
+    let mut pos_o: Vec<usize> = (0..n).collect();
+    let mut alive_r: Vec<usize> = (0..n).collect();
+    let nearest = |i: usize, alive_o: &[usize]| -> (usize, f64) {
         let row = &sim[i * n..(i + 1) * n];
         let mut best = (usize::MAX, f64::NEG_INFINITY);
-        for (j, &s) in row.iter().enumerate() {
-            if !taken[j] && s > best.1 {
+        for &j in alive_o {
+            let s = row[j];
+            if s > best.1 || (s == best.1 && j < best.0) {
                 best = (j, s);
             }
         }
         best
     };
-    let mut near: Vec<(usize, f64)> = (0..n).map(|i| nearest(i, &taken)).collect();
+    let mut near: Vec<(usize, f64)> = (0..n).map(|i| nearest(i, &alive_o)).collect();
+    // The rotated parcel whose nearest unassigned original is farthest.
+    let argmin = |alive_r: &[usize], near: &[(usize, f64)]| -> usize {
+        let mut best = (usize::MAX, usize::MAX, f64::INFINITY);
+        for (p, &i) in alive_r.iter().enumerate() {
+            let v = near[i].1;
+            if v < best.2 || (v == best.2 && i < best.1) {
+                best = (p, i, v);
+            }
+        }
+        best.0
+    };
     let mut out = vec![usize::MAX; n];
-    for _ in 0..n {
-        // The rotated parcel whose nearest unassigned original is farthest.
-        let mut pick = usize::MAX;
-        let mut worst = f64::INFINITY;
-        for i in 0..n {
-            if !done[i] && near[i].1 < worst {
-                worst = near[i].1;
-                pick = i;
+    let mut pick_pos = argmin(&alive_r, &near);
+    while !alive_r.is_empty() {
+        let i = alive_r.swap_remove(pick_pos);
+        let j = near[i].0;
+        out[j] = i;
+        let pj = pos_o[j];
+        alive_o.swap_remove(pj);
+        if pj < alive_o.len() {
+            pos_o[alive_o[pj]] = pj;
+        }
+        // Parcels whose nearest was j get a new nearest; the next pick is
+        // found in the same pass.
+        let mut best = (usize::MAX, usize::MAX, f64::INFINITY);
+        for (p, &r) in alive_r.iter().enumerate() {
+            if near[r].0 == j {
+                near[r] = nearest(r, &alive_o);
+            }
+            let v = near[r].1;
+            if v < best.2 || (v == best.2 && r < best.1) {
+                best = (p, r, v);
             }
         }
-        let (j, _) = near[pick];
-        taken[j] = true;
-        done[pick] = true;
-        out[j] = pick;
-        // Only parcels whose nearest was j have a new nearest: rescan those.
-        for i in 0..n {
-            if !done[i] && near[i].0 == j {
-                near[i] = nearest(i, &taken);
-            }
-        }
+        pick_pos = best.0;
     }
     out
 }
