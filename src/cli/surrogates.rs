@@ -103,6 +103,9 @@ fn load_matrix(raw: &str) -> anyhow::Result<(InputSpec, Array2<f64>)> {
 }
 
 pub fn run(args: SurrogatesArgs) -> anyhow::Result<ExitCode> {
+    if args.hemisphere.is_some() && !matches!(args.method, Method::Spin) {
+        anyhow::bail!("--hemisphere applies to --method spin only");
+    }
     let map_spec = InputSpec::parse(&args.map)?;
     let la = read_array(&map_spec)?;
     let map = validate::region_map(&la, None)?;
