@@ -3,6 +3,7 @@
 mod bad_input;
 mod cli;
 mod demo_data;
+mod hierarchy;
 mod io_arrays;
 mod io_h5;
 mod stats;

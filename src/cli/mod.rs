@@ -2,7 +2,10 @@
 //! arguments and a `run` that turns them into library calls.
 
 mod demo;
+mod gradient;
 mod inspect;
+mod states;
+mod surrogates;
 
 use clap::{Parser, Subcommand};
 use std::process::ExitCode;
@@ -21,6 +24,9 @@ pub struct Cli {
 enum Command {
     Inspect(inspect::InspectArgs),
     Demo(demo::DemoArgs),
+    States(states::StatesArgs),
+    Gradient(gradient::GradientArgs),
+    Surrogates(surrogates::SurrogatesArgs),
 }
 
 /// Parse the command line and run the chosen command.
@@ -29,6 +35,9 @@ pub fn run() -> anyhow::Result<ExitCode> {
     match cli.command {
         Command::Inspect(args) => inspect::run(args),
         Command::Demo(args) => demo::run(args),
+        Command::States(args) => states::run(args),
+        Command::Gradient(args) => gradient::run(args),
+        Command::Surrogates(args) => surrogates::run(args),
     }
 }
 
