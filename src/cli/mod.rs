@@ -2,6 +2,7 @@
 //! arguments and a `run` that turns them into library calls.
 
 mod demo;
+mod energy;
 mod inspect;
 
 use clap::{Parser, Subcommand};
@@ -21,6 +22,7 @@ pub struct Cli {
 enum Command {
     Inspect(inspect::InspectArgs),
     Demo(demo::DemoArgs),
+    Energy(energy::EnergyArgs),
 }
 
 /// Parse the command line and run the chosen command.
@@ -29,6 +31,7 @@ pub fn run() -> anyhow::Result<ExitCode> {
     match cli.command {
         Command::Inspect(args) => inspect::run(args),
         Command::Demo(args) => demo::run(args),
+        Command::Energy(args) => energy::run(args),
     }
 }
 
