@@ -4,12 +4,11 @@ use anyhow::{anyhow, bail, Context};
 use clap::{Args, ValueEnum};
 use hierax::control::penalised::{penalised_energy_matrix, PenaltyParams};
 use hierax::control::states::{indicator_states, states_from_matrix};
-use hierax::control::{self, Drivers, Par, System, SystemParams, TimeModel};
+use hierax::control::{self, tables, Drivers, Par, System, SystemParams, TimeModel};
 use hierax::io::provenance::{InputRecord, Provenance};
 use hierax::io::table::{write_json, Column, Table};
 use hierax::io::validate::{self, ConnectomeRules};
 use hierax::io::{read_array, InputSpec};
-use ndarray::Array2;
 use std::path::PathBuf;
 use std::process::ExitCode;
 
@@ -110,14 +109,6 @@ fn looks_like_list(s: &str) -> bool {
     s.chars().all(|c| c.is_ascii_digit() || c == ',' || c == '-' || c.is_whitespace())
 }
 
-fn matrix_table(m: &Array2<f64>, labels: &[String]) -> Table {
-    let mut t = Table::new().with("state", Column::Str(labels.to_vec()));
-    for (j, l) in labels.iter().enumerate() {
-        t = t.with(l, Column::F64(m.column(j).to_vec()));
-    }
-    t
-}
-
 pub fn run(args: EnergyArgs) -> anyhow::Result<ExitCode> {
     let conn_spec = InputSpec::parse(&args.connectome)?;
     let la = read_array(&conn_spec)?;
@@ -205,38 +196,10 @@ pub fn run(args: EnergyArgs) -> anyhow::Result<ExitCode> {
     };
 
     // Tables, all built before anything is written.
-    let labels: Vec<String> = (1..=k).map(|i| format!("state_{i}")).collect();
-    let (mut src, mut dst, mut e, mut a, mut ep) = (vec![], vec![], vec![], vec![], vec![]);
-    for i in 0..k {
-        for j in 0..k {
-            src.push(i as i64 + 1);
-            dst.push(j as i64 + 1);
-            e.push(energy[[i, j]]);
-            a.push(asym[[i, j]]);
-            if let Some((pe, _)) = &penalised {
-                ep.push(pe[[i, j]]);
-            }
-        }
-    }
-    let mut tidy = Table::new()
-        .with("initial_state", Column::I64(src))
-        .with("target_state", Column::I64(dst))
-        .with("energy", Column::F64(e))
-        .with("asymmetry", Column::F64(a));
-    if penalised.is_some() {
-        tidy = tidy.with("penalised_energy", Column::F64(ep));
-    }
+    let tidy = tables::pair_table(energy.view(), penalised.as_ref().map(|p| p.0.view()));
     let names: Vec<String> =
         conn.names.clone().unwrap_or_else(|| (1..=n).map(|i| format!("region_{i}")).collect());
-    let mut nodes = Table::new()
-        .with("region", Column::I64((1..=n as i64).collect()))
-        .with("name", Column::Str(names))
-        .with("driver_weight", Column::F64(valid.input_weights().to_vec()))
-        .with("average_controllability", Column::F64(metrics.average.to_vec()));
-    nodes = nodes.with(
-        "modal_controllability",
-        Column::F64(metrics.modal.as_ref().map_or_else(|| vec![f64::NAN; n], |m| m.to_vec())),
-    );
+    let nodes = tables::node_table(&names, valid.input_weights(), &metrics);
     let mut qc_names = vec!["gramian_condition", "terminal_error_max", "state_norm_max", "spectral_radius"];
     let mut qc_vals =
         vec![info.gramian_condition, info.terminal_error_max, info.state_norm_max, sys.spectral_radius()];
@@ -275,8 +238,8 @@ pub fn run(args: EnergyArgs) -> anyhow::Result<ExitCode> {
 
     let out = &args.out;
     tidy.write_csv(&out.join("energy.csv"))?;
-    matrix_table(&energy, &labels).write_csv(&out.join("energy_matrix.csv"))?;
-    matrix_table(&asym, &labels).write_csv(&out.join("asymmetry_matrix.csv"))?;
+    tables::matrix_table(energy.view()).write_csv(&out.join("energy_matrix.csv"))?;
+    tables::matrix_table(asym.view()).write_csv(&out.join("asymmetry_matrix.csv"))?;
     nodes.write_csv(&out.join("node_metrics.csv"))?;
     qc.write_csv(&out.join("qc.csv"))?;
     write_json(&out.join("control.json"), &json)?;

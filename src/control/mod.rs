@@ -56,6 +56,7 @@ mod params;
 pub mod penalised;
 pub mod states;
 mod system;
+pub mod tables;
 pub mod trajectory;
 
 pub use energy::{asymmetry, energy_matrix, minimum_energy, EnergyInfo, Route};
