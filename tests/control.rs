@@ -334,3 +334,89 @@ fn a_single_driver_on_a_long_chain_warns_instead_of_returning_nan() {
         Err(err) => assert!(err.to_string().contains("numerically singular"), "{err}"),
     }
 }
+
+#[test]
+fn discrete_optimal_input_reaches_the_target_and_sums_to_the_energy() {
+    // x_{t+1} = Ãx_t + Bu_t iterated with the returned inputs must end at x_f,
+    // and Σ_t ‖u_t‖² must equal the numpy-solved energy of the fixture (1e-8).
+    for (case, how, directed) in
+        [("discrete_symmetric_all", "all", false), ("discrete_directed_subset", "nodes", true)]
+    {
+        let sys = system(case, TimeModel::Discrete, drivers_for(case, how), directed);
+        let x = load2(case, "states");
+        let tr = optimal_transition(&sys, x.column(0), x.column(1), &[]).unwrap();
+        let a = sys.normalised();
+        let b = Array1::from(sys.params().input_weights().to_vec());
+        let mut xv = x.column(0).to_owned();
+        for t in 0..sys.params().horizon() as usize {
+            xv = a.dot(&xv) + &(&b * &tr.input.row(t));
+        }
+        let miss = (&xv - &x.column(1)).mapv(|v| v * v).sum().sqrt();
+        assert!(miss < 1e-9, "{case}: misses x_f by {miss:e}");
+        let want = load2(case, "energy")[[0, 1]];
+        assert!(
+            (tr.node_energy.sum() - want).abs() <= 1e-8 * want,
+            "{case}: {} vs {want}",
+            tr.node_energy.sum()
+        );
+    }
+}
+
+#[test]
+fn energy_help_has_a_worked_example() {
+    let o = run(hierax().args(["energy", "--help"]));
+    assert!(o.status.success());
+    let text = String::from_utf8(o.stdout).unwrap();
+    assert!(text.contains("hierax energy sub-01_connectome.csv --map"), "{text}");
+    assert!(text.contains("not for clinical decisions"), "{text}");
+}
+
+#[test]
+fn energy_command_options_run_and_match_the_library() {
+    let dir = tempfile::tempdir().unwrap();
+    let c = write(dir.path(), "c.csv", GOOD);
+    let s = write(dir.path(), "s.csv", "1,0,0,0\n0,0,1,1\n0.5,0.5,0,0\n");
+    write(dir.path(), "w.csv", "1\n0.5\n0\n2\n");
+    let runs: Vec<Vec<&str>> = vec![
+        vec!["--drivers", "1,3-4", "--horizon", "2"],
+        vec!["--drivers", "w.csv", "--directed"],
+        vec!["--time-model", "discrete", "--horizon", "5", "--stability-offset", "0.5"],
+        vec!["--state-penalty", "1-2", "--rho", "0.5"],
+    ];
+    for (i, extra) in runs.iter().enumerate() {
+        let out = dir.path().join(format!("o{i}"));
+        let mut cmd = hierax();
+        cmd.current_dir(dir.path())
+            .arg("energy")
+            .arg(&c)
+            .arg("--states")
+            .arg(&s)
+            .args(extra)
+            .arg("--out")
+            .arg(&out);
+        let o = run(&mut cmd);
+        assert!(o.status.success(), "run {i}");
+        let tidy = std::fs::read_to_string(out.join("energy.csv")).unwrap();
+        assert_eq!(tidy.lines().count(), 10, "run {i}: {tidy}");
+        assert_eq!(tidy.starts_with("initial_state,target_state,energy,asymmetry,penalised_energy"), i == 3);
+    }
+    // Run 0 against the library: E[1, 2] of the same system.
+    let a = Array2::from_shape_vec(
+        (4, 4),
+        GOOD.split([',', '\n']).filter(|t| !t.is_empty()).map(|t| t.parse().unwrap()).collect(),
+    )
+    .unwrap();
+    let mut p = SystemParams::new();
+    p.drivers = Drivers::Nodes(vec![0, 2, 3]);
+    p.horizon = 2.0;
+    let sys = System::new(a.view(), false, &p.check(4).unwrap(), Par::Seq).unwrap();
+    let x = Array2::from_shape_vec((3, 4), vec![1.0, 0.0, 0.0, 0.0, 0.0, 0.0, 1.0, 1.0, 0.5, 0.5, 0.0, 0.0])
+        .unwrap();
+    let (e, _) = energy_matrix(&sys, x.t()).unwrap();
+    let tidy = std::fs::read_to_string(dir.path().join("o0").join("energy.csv")).unwrap();
+    let row: Vec<&str> = tidy.lines().nth(2).unwrap().split(',').collect();
+    assert_eq!(row[0..2], ["1", "2"]);
+    let v: f64 = row[2].parse().unwrap();
+    // Not bit-exact: the command runs faer multi-threaded, which may change last bits.
+    assert!((v - e[[0, 1]]).abs() <= 1e-12 * e[[0, 1]], "{v} vs {}", e[[0, 1]]);
+}
