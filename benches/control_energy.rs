@@ -65,12 +65,24 @@ fn main() {
         let x = states(n, 20, n as u64);
         let path = dir.join(format!("a{n}.npy"));
         ndarray_npy::write_npy(&path, &a).expect("write npy");
-        let out = std::process::Command::new(&python).arg(script).arg(&path).arg(reps.to_string()).output();
-        let numpy_s = match out {
-            Ok(o) if o.status.success() => String::from_utf8_lossy(&o.stdout).trim().parse::<f64>().ok(),
-            _ => None,
+        // numpy with OpenBLAS pinned to the same thread count as hierax, so
+        // that neither side is oversubscribed on the shared machine.
+        let numpy = |threads: usize| -> Option<f64> {
+            let o = std::process::Command::new(&python)
+                .arg(script)
+                .arg(&path)
+                .arg(reps.to_string())
+                .env("OPENBLAS_NUM_THREADS", threads.to_string())
+                .env("OMP_NUM_THREADS", threads.to_string())
+                .output()
+                .ok()?;
+            if !o.status.success() {
+                return None;
+            }
+            String::from_utf8_lossy(&o.stdout).trim().parse::<f64>().ok()
         };
-        for (label, par) in [("2 threads", Par::rayon(2)), ("1 thread", Par::Seq)] {
+        for (label, par, threads) in [("2 threads", Par::rayon(2), 2), ("1 thread", Par::Seq, 1)] {
+            let numpy_s = numpy(threads);
             full_energy(&a, &x, par);
             let t: Vec<f64> = (0..reps)
                 .map(|_| {
