@@ -141,6 +141,9 @@ pub fn run(args: EnergyArgs) -> anyhow::Result<ExitCode> {
             _ => bail!("give --states SPEC, or --map SPEC with --bins K"),
         };
         let map = validate::region_map(&read_array(&mspec)?, Some(n))?;
+        if let (Some(cn), Some(mn)) = (&conn.names, &map.names) {
+            validate::names_agree((&conn_spec.to_string(), cn), (&mspec.to_string(), mn))?;
+        }
         let x = indicator_states(map.values.view(), k).map_err(|e| anyhow!("{mspec}: {e}"))?;
         inputs.push(InputRecord::of("map", &mspec)?);
         (x, format!("indicators of {k} equal-count bins of {mspec}, ascending, ties by region order"))

@@ -302,6 +302,15 @@ mod tests {
     }
 
     #[test]
+    fn single_pair_api_equals_the_matrix_entry() {
+        let sys = scalar(-0.5, 1.3, TimeModel::Continuous);
+        let x = array![[0.4, -1.0], [0.9, 0.3]];
+        let (e, _) = energy_matrix(&sys, x.view()).unwrap();
+        let (one, _) = minimum_energy(&sys, x.column(1), x.column(0)).unwrap();
+        assert!((one - e[[1, 0]]).abs() <= 1e-14 * e[[1, 0]]);
+    }
+
+    #[test]
     fn wrong_state_length_is_refused() {
         let sys = scalar(-0.5, 1.0, TimeModel::Continuous);
         let x = Array2::<f64>::zeros((3, 2));

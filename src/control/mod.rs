@@ -46,6 +46,16 @@
 //! [`energy::CONDITION_WARNING`]) is reported, never hidden: add drivers,
 //! lengthen the horizon, or compare energies only within that driver set.
 //!
+//! # Outputs
+//! Results are plain arrays (`ndarray`) with their info structs; [`tables`]
+//! turns them into tidy tables (one row per ordered pair of states, one row
+//! per region) for CSV or any other writer.
+//!
+//! # Threads
+//! Every dense kernel runs with the [`Par`] given to [`System::new`]
+//! (`Par::Seq` inside a parallel loop over networks); thread count can
+//! change the last bits of results.
+//!
 //! Research software: results are not for clinical decisions.
 
 pub mod energy;
