@@ -2,6 +2,7 @@
 
 mod bad_input;
 mod cli;
+mod control;
 mod demo_data;
 mod hierarchy;
 mod io_arrays;

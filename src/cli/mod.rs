@@ -2,6 +2,7 @@
 //! arguments and a `run` that turns them into library calls.
 
 mod demo;
+mod energy;
 mod gradient;
 mod inspect;
 mod states;
@@ -27,6 +28,7 @@ enum Command {
     States(states::StatesArgs),
     Gradient(gradient::GradientArgs),
     Surrogates(surrogates::SurrogatesArgs),
+    Energy(energy::EnergyArgs),
 }
 
 /// Parse the command line and run the chosen command.
@@ -38,6 +40,7 @@ pub fn run() -> anyhow::Result<ExitCode> {
         Command::States(args) => states::run(args),
         Command::Gradient(args) => gradient::run(args),
         Command::Surrogates(args) => surrogates::run(args),
+        Command::Energy(args) => energy::run(args),
     }
 }
 

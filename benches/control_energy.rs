@@ -1,0 +1,134 @@
+//! Benchmark of `hierax::control` (run with `cargo bench --bench control_energy`).
+//!
+//! 1. The full k = 20 energy matrix (continuous time, B = I) for n = 400 and
+//!    n = 1000, against numpy's `linalg.eigh` of the same matrix, timed in the
+//!    same run (benches/control_numpy.py under /opt/hierax-ref/bin/python).
+//!    Target: hierax's whole energy matrix within 1.5x of that single eigh.
+//! 2. 1000 networks of n = 200, each with its 16 x 16 energy matrix, rayon
+//!    over networks on 2 threads with one thread per faer call: networks/s.
+//!
+//! The machine is shared; figures are medians and indicative only.
+
+use hierax::control::states::indicator_states;
+use hierax::control::{energy_matrix, Par, System, SystemParams};
+use ndarray::{Array1, Array2};
+use rand::{Rng, SeedableRng};
+use rand_chacha::ChaCha8Rng;
+use rayon::prelude::*;
+use std::time::Instant;
+
+/// Random symmetric weighted network (invented), ~30 % density, ring added so no node is isolated.
+fn network(n: usize, seed: u64) -> Array2<f64> {
+    let mut rng = ChaCha8Rng::seed_from_u64(seed);
+    let mut a = Array2::zeros((n, n));
+    for i in 0..n {
+        for j in (i + 1)..n {
+            if rng.random::<f64>() < 0.3 {
+                let w: f64 = rng.random();
+                a[[i, j]] = w;
+                a[[j, i]] = w;
+            }
+        }
+        let j = (i + 1) % n;
+        a[[i, j]] = a[[i, j]].max(0.1);
+        a[[j, i]] = a[[i, j]];
+    }
+    a
+}
+
+fn states(n: usize, k: usize, seed: u64) -> Array2<f64> {
+    let mut rng = ChaCha8Rng::seed_from_u64(seed ^ 0x5eed);
+    let map = Array1::from_iter((0..n).map(|_| rng.random::<f64>()));
+    indicator_states(map.view(), k).expect("k <= n")
+}
+
+fn median(mut v: Vec<f64>) -> f64 {
+    v.sort_by(f64::total_cmp);
+    v[v.len() / 2]
+}
+
+fn full_energy(a: &Array2<f64>, x: &Array2<f64>, par: Par) -> f64 {
+    let p = SystemParams::new().check(a.nrows()).expect("valid");
+    let sys = System::new(a.view(), false, &p, par).expect("system");
+    let (e, _) = energy_matrix(&sys, x.view()).expect("energy");
+    e.sum()
+}
+
+fn main() {
+    let python = std::env::var("HIERAX_REF_PYTHON").unwrap_or_else(|_| "/opt/hierax-ref/bin/python".into());
+    let script = concat!(env!("CARGO_MANIFEST_DIR"), "/benches/control_numpy.py");
+    let dir = std::env::temp_dir().join(format!("hierax-bench-{}", std::process::id()));
+    std::fs::create_dir_all(&dir).expect("temp dir");
+    println!("hierax control benchmark (shared 2-core machine; medians)");
+    for (n, reps) in [(400usize, 9usize), (1000, 5)] {
+        let a = network(n, n as u64);
+        let x = states(n, 20, n as u64);
+        let path = dir.join(format!("a{n}.npy"));
+        ndarray_npy::write_npy(&path, &a).expect("write npy");
+        // numpy with OpenBLAS pinned to the same thread count as hierax, so
+        // that neither side is oversubscribed on the shared machine.
+        let numpy = |threads: usize| -> Option<f64> {
+            let o = std::process::Command::new(&python)
+                .arg(script)
+                .arg(&path)
+                .arg(reps.to_string())
+                .env("OPENBLAS_NUM_THREADS", threads.to_string())
+                .env("OMP_NUM_THREADS", threads.to_string())
+                .output()
+                .ok()?;
+            if !o.status.success() {
+                return None;
+            }
+            String::from_utf8_lossy(&o.stdout).trim().parse::<f64>().ok()
+        };
+        for (label, par, threads) in [("2 threads", Par::rayon(2), 2), ("1 thread", Par::Seq, 1)] {
+            let numpy_s = numpy(threads);
+            full_energy(&a, &x, par);
+            let t: Vec<f64> = (0..reps)
+                .map(|_| {
+                    let t0 = Instant::now();
+                    std::hint::black_box(full_energy(&a, &x, par));
+                    t0.elapsed().as_secs_f64()
+                })
+                .collect();
+            let h = median(t);
+            match numpy_s {
+                Some(np) => println!(
+                    "n = {n:4}, k = 20, {label}: hierax energy matrix {:.2} ms, numpy eigh {:.2} ms, ratio {:.2}",
+                    h * 1e3,
+                    np * 1e3,
+                    h / np
+                ),
+                None => println!("n = {n:4}, k = 20, {label}: hierax energy matrix {:.2} ms (numpy baseline unavailable)", h * 1e3),
+            }
+        }
+    }
+    let _ = std::fs::remove_dir_all(&dir);
+
+    let pool = rayon::ThreadPoolBuilder::new().num_threads(2).build().expect("pool");
+    let (count, n, k) = (1000usize, 200usize, 16usize);
+    let t0 = Instant::now();
+    let gen: f64 = pool.install(|| {
+        (0..count)
+            .into_par_iter()
+            .map(|s| network(n, s as u64)[[0, 1]] + states(n, k, s as u64)[[0, 0]])
+            .sum()
+    });
+    let gen_s = t0.elapsed().as_secs_f64();
+    let t0 = Instant::now();
+    let total: f64 = pool.install(|| {
+        (0..count)
+            .into_par_iter()
+            .map(|s| full_energy(&network(n, s as u64), &states(n, k, s as u64), Par::Seq))
+            .sum()
+    });
+    let all_s = t0.elapsed().as_secs_f64();
+    std::hint::black_box((gen, total));
+    println!(
+        "{count} networks of n = {n}, {k} x {k} energies each, 2 threads: {:.1} networks/s \
+         ({:.2} s in all, of which generating the random networks {:.2} s)",
+        count as f64 / all_s,
+        all_s,
+        gen_s
+    );
+}
