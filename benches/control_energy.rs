@@ -9,8 +9,8 @@
 //!
 //! The machine is shared; figures are medians and indicative only.
 
-use hierax::control::states::indicator_states;
 use hierax::control::{energy_matrix, Par, System, SystemParams};
+use hierax::hierarchy::{build_states, StatesParams};
 use ndarray::{Array1, Array2};
 use rand::{Rng, SeedableRng};
 use rand_chacha::ChaCha8Rng;
@@ -39,7 +39,7 @@ fn network(n: usize, seed: u64) -> Array2<f64> {
 fn states(n: usize, k: usize, seed: u64) -> Array2<f64> {
     let mut rng = ChaCha8Rng::seed_from_u64(seed ^ 0x5eed);
     let map = Array1::from_iter((0..n).map(|_| rng.random::<f64>()));
-    indicator_states(map.view(), k).expect("k <= n")
+    build_states(map.as_slice().expect("contiguous"), &StatesParams::new(k)).expect("k <= n").matrix
 }
 
 fn median(mut v: Vec<f64>) -> f64 {

@@ -3,8 +3,9 @@
 use anyhow::{anyhow, bail, Context};
 use clap::{Args, ValueEnum};
 use hierax::control::penalised::{penalised_energy_matrix, PenaltyParams};
-use hierax::control::states::{indicator_states, states_from_matrix};
+use hierax::control::states::states_from_matrix;
 use hierax::control::{self, tables, Drivers, Par, System, SystemParams, TimeModel};
+use hierax::hierarchy::{build_states, StatesParams};
 use hierax::io::provenance::{InputRecord, Provenance};
 use hierax::io::table::{write_json, Column, Table};
 use hierax::io::validate::{self, ConnectomeRules};
@@ -144,9 +145,14 @@ pub fn run(args: EnergyArgs) -> anyhow::Result<ExitCode> {
         if let (Some(cn), Some(mn)) = (&conn.names, &map.names) {
             validate::names_agree((&conn_spec.to_string(), cn), (&mspec.to_string(), mn))?;
         }
-        let x = indicator_states(map.values.view(), k).map_err(|e| anyhow!("{mspec}: {e}"))?;
+        let built =
+            build_states(&map.values.to_vec(), &StatesParams::new(k)).map_err(|e| anyhow!("{mspec}: {e}"))?;
+        notes.extend(built.notes.iter().cloned());
         inputs.push(InputRecord::of("map", &mspec)?);
-        (x, format!("indicators of {k} equal-count bins of {mspec}, ascending, ties by region order"))
+        (
+            built.matrix.clone(),
+            format!("indicators of {k} equal-count bins of {mspec} (numpy array_split of a stable ascending sort)"),
+        )
     };
     let k = states.ncols();
 
