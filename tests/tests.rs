@@ -1,4 +1,5 @@
 //! All integration tests, built into one binary (see DEVELOPERS.md).
 
 mod cli;
+mod timescale;
 mod util;

@@ -3,6 +3,7 @@
 
 mod demo;
 mod inspect;
+mod timescales;
 
 use clap::{Parser, Subcommand};
 use std::process::ExitCode;
@@ -21,6 +22,7 @@ pub struct Cli {
 enum Command {
     Inspect(inspect::InspectArgs),
     Demo(demo::DemoArgs),
+    Timescales(timescales::TimescalesArgs),
 }
 
 /// Parse the command line and run the chosen command.
@@ -29,6 +31,7 @@ pub fn run() -> anyhow::Result<ExitCode> {
     match cli.command {
         Command::Inspect(args) => inspect::run(args),
         Command::Demo(args) => demo::run(args),
+        Command::Timescales(args) => timescales::run(args),
     }
 }
 

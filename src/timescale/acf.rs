@@ -311,7 +311,13 @@ mod tests {
             }
         }
         (0..=max_lag)
-            .map(|k| if p[k] > 0.0 { (c[k] / p[k]) * (1.0 - k as f64 / n as f64) / (c[0] / nv) } else { f64::NAN })
+            .map(|k| {
+                if p[k] > 0.0 {
+                    (c[k] / p[k]) * (1.0 - k as f64 / n as f64) / (c[0] / nv)
+                } else {
+                    f64::NAN
+                }
+            })
             .collect()
     }
 

@@ -175,7 +175,8 @@ impl TimescaleResult {
             .filter(|&&e| r.estimates.status_of(e) != EstimateStatus::Ok)
             .map(|&e| format!("{}:{}", e.prefix(), r.estimates.status_of(e).as_str()))
             .collect();
-        if self.params.bias_correction == BiasCorrection::Ar1 && r.estimates.ar1_status != EstimateStatus::Ok {
+        if self.params.bias_correction == BiasCorrection::Ar1 && r.estimates.ar1_status != EstimateStatus::Ok
+        {
             items.push(format!("ar1:{}", r.estimates.ar1_status.as_str()));
         }
         if r.se.iter().any(|s| !s.is_finite()) {
@@ -212,7 +213,10 @@ impl TimescaleResult {
             }
             let i = names.iter().position(|n| *n == name).unwrap_or(0);
             let col = name.strip_suffix("_s").unwrap_or(name);
-            t.with(&format!("{col}_se_s"), Column::F64(rs.iter().map(|r| r.se.get(i).copied().unwrap_or(f64::NAN)).collect()))
+            t.with(
+                &format!("{col}_se_s"),
+                Column::F64(rs.iter().map(|r| r.se.get(i).copied().unwrap_or(f64::NAN)).collect()),
+            )
         };
         for &e in &self.params.estimators {
             match e {
@@ -233,14 +237,20 @@ impl TimescaleResult {
                     t = se_col(t, "acw0_interp_s");
                 }
                 Estimator::ExpFit => {
-                    let x = |g: fn(&ExpFit) -> f64| f(&move |r: &RegionResult| r.estimates.exp.as_ref().map_or(f64::NAN, g));
+                    let x = |g: fn(&ExpFit) -> f64| {
+                        f(&move |r: &RegionResult| r.estimates.exp.as_ref().map_or(f64::NAN, g))
+                    };
                     t = t.with("exp_tau_s", x(|e| e.tau_s));
                     t = se_col(t, "exp_tau_s");
                     t = t.with("exp_amplitude", x(|e| e.amplitude)).with("exp_offset", x(|e| e.offset));
-                    t = t.with("exp_first_lag", x(|e| e.lags.0 as f64)).with("exp_last_lag", x(|e| e.lags.1 as f64));
+                    t = t
+                        .with("exp_first_lag", x(|e| e.lags.0 as f64))
+                        .with("exp_last_lag", x(|e| e.lags.1 as f64));
                 }
                 Estimator::SpectralKnee => {
-                    let x = |g: fn(&KneeFit) -> f64| f(&move |r: &RegionResult| r.estimates.knee.as_ref().map_or(f64::NAN, g));
+                    let x = |g: fn(&KneeFit) -> f64| {
+                        f(&move |r: &RegionResult| r.estimates.knee.as_ref().map_or(f64::NAN, g))
+                    };
                     t = t.with("knee_tau_s", x(|k| k.tau_s));
                     t = se_col(t, "knee_tau_s");
                     t = t.with("knee_hz", x(|k| k.knee_hz)).with("knee_exponent", x(|k| k.exponent));
@@ -425,7 +435,9 @@ pub fn estimate_timescales(
                         .map(|j| {
                             let c = j - lo;
                             let col = &buf[c * n..(c + 1) * n];
-                            region(ws, col, &names[j], valid, n_valid, censored, &pairs, &model, &boot, params)
+                            region(
+                                ws, col, &names[j], valid, n_valid, censored, &pairs, &model, &boot, params,
+                            )
                         })
                         .collect::<Vec<_>>()
                 },
@@ -461,7 +473,10 @@ fn region(
         status,
         n_valid_frames: n_valid,
         estimates: RegionEstimates::empty(EstimateStatus::NotComputed),
-        se: vec![f64::NAN; if p.bootstrap > 0 { RegionEstimates::empty(EstimateStatus::Ok).primary(p).len() } else { 0 }],
+        se: vec![
+            f64::NAN;
+            if p.bootstrap > 0 { RegionEstimates::empty(EstimateStatus::Ok).primary(p).len() } else { 0 }
+        ],
         se_replicates: Vec::new(),
     };
     let mut finite = true;
@@ -533,7 +548,14 @@ fn region(
         }
     }
     ws.x = x;
-    RegionResult { name: name.to_string(), status: RegionStatus::Ok, n_valid_frames: n_valid, estimates, se, se_replicates }
+    RegionResult {
+        name: name.to_string(),
+        status: RegionStatus::Ok,
+        n_valid_frames: n_valid,
+        estimates,
+        se,
+        se_replicates,
+    }
 }
 
 /// All selected estimators from one residual series.

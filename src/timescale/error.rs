@@ -37,9 +37,7 @@ pub enum TimescaleError {
         found: usize,
     },
     /// A frame that is not censored holds non-finite values in every region.
-    #[error(
-        "frame {frame} (1-based) is non-finite in every region; censor it (--censor-mask) or remove it"
-    )]
+    #[error("frame {frame} (1-based) is non-finite in every region; censor it (--censor-mask) or remove it")]
     NonFiniteFrame {
         /// The frame, 1-based.
         frame: usize,
@@ -62,7 +60,9 @@ pub enum TimescaleError {
         column: String,
     },
     /// Framewise displacement is non-finite where it must be defined.
-    #[error("framewise displacement is non-finite at frame {frame} (1-based); only the first frame may be n/a")]
+    #[error(
+        "framewise displacement is non-finite at frame {frame} (1-based); only the first frame may be n/a"
+    )]
     NonFiniteDisplacement {
         /// The frame, 1-based.
         frame: usize,

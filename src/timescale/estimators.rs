@@ -237,7 +237,11 @@ pub struct KneeFit {
 /// `TooFewPoints` with fewer than four frequencies; `NonFiniteInput` when a
 /// density is not positive and finite; `NotConverged`; `InvalidFit` when
 /// k ≤ 0 or χ ≤ 0 (no knee).
-pub fn fit_spectral_knee(freq_hz: &[f64], density: &[f64], band_hz: (f64, f64)) -> Result<KneeFit, EstimateStatus> {
+pub fn fit_spectral_knee(
+    freq_hz: &[f64],
+    density: &[f64],
+    band_hz: (f64, f64),
+) -> Result<KneeFit, EstimateStatus> {
     let (lo, hi) = band_hz;
     let pts: Vec<(f64, f64)> = freq_hz
         .iter()
@@ -289,7 +293,15 @@ pub fn fit_spectral_knee(freq_hz: &[f64], density: &[f64], band_hz: (f64, f64)) 
     if !tau_s.is_finite() {
         return Err(EstimateStatus::InvalidFit);
     }
-    Ok(KneeFit { tau_s, knee_hz, offset: b, knee: k, exponent: chi, iterations: rep.iterations, rss: 2.0 * rep.cost })
+    Ok(KneeFit {
+        tau_s,
+        knee_hz,
+        offset: b,
+        knee: k,
+        exponent: chi,
+        iterations: rep.iterations,
+        rss: 2.0 * rep.cost,
+    })
 }
 
 /// AR(1) timescale from the lag-1 autocorrelation, $\tau=-\mathrm{TR}/\ln\hat\rho_1$,

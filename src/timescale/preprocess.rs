@@ -21,7 +21,11 @@ use serde::Serialize;
 /// [`TimescaleError::InvalidParameter`] when the threshold is not positive
 /// and finite; [`TimescaleError::NonFiniteDisplacement`] for a non-finite
 /// value after the first frame.
-pub fn censor_from_displacement(fd_mm: &[f64], threshold_mm: f64, after: usize) -> Result<Vec<bool>, TimescaleError> {
+pub fn censor_from_displacement(
+    fd_mm: &[f64],
+    threshold_mm: f64,
+    after: usize,
+) -> Result<Vec<bool>, TimescaleError> {
     if !(threshold_mm > 0.0 && threshold_mm.is_finite()) {
         return Err(TimescaleError::InvalidParameter {
             name: "fd-threshold",
@@ -218,8 +222,10 @@ mod tests {
     fn duplicate_confound_is_named() {
         let n = 20;
         let c: Vec<f64> = (0..n).map(|t| (t as f64).sin()).collect();
-        let conf = [Confound { name: "a".into(), values: c.clone() }, Confound { name: "b".into(), values: c }];
-        let spec = NuisanceSpec { demean: true, detrend_order: None, confounds: vec!["a".into(), "b".into()] };
+        let conf =
+            [Confound { name: "a".into(), values: c.clone() }, Confound { name: "b".into(), values: c }];
+        let spec =
+            NuisanceSpec { demean: true, detrend_order: None, confounds: vec!["a".into(), "b".into()] };
         let e = NuisanceModel::new(&vec![true; n], &spec, &conf).unwrap_err();
         assert_eq!(e, TimescaleError::RankDeficientDesign { column: "b".into() });
     }
