@@ -22,7 +22,7 @@ pub struct Cli {
 enum Command {
     Inspect(inspect::InspectArgs),
     Demo(demo::DemoArgs),
-    Timescales(timescales::TimescalesArgs),
+    Timescales(Box<timescales::TimescalesArgs>),
 }
 
 /// Parse the command line and run the chosen command.
@@ -31,7 +31,7 @@ pub fn run() -> anyhow::Result<ExitCode> {
     match cli.command {
         Command::Inspect(args) => inspect::run(args),
         Command::Demo(args) => demo::run(args),
-        Command::Timescales(args) => timescales::run(args),
+        Command::Timescales(args) => timescales::run(*args),
     }
 }
 

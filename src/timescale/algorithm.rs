@@ -482,7 +482,6 @@ fn region(
     let mut finite = true;
     let mut first: Option<f64> = None;
     let mut constant = true;
-    let mut scale = 0.0f64;
     for ((x, &v), &m) in ws.x.iter_mut().zip(col).zip(valid) {
         if m {
             finite &= v.is_finite();
@@ -490,7 +489,6 @@ fn region(
                 None => first = Some(v),
                 Some(f) => constant &= v == f,
             }
-            scale = scale.max(v.abs());
             *x = v;
         } else {
             *x = 0.0;
@@ -512,7 +510,7 @@ fn region(
     // A residual at round-off level relative to the signal means the nuisance
     // terms explain the region entirely (relative 1e-20 in sums of squares,
     // i.e. 1e-10 in amplitude, far above f64 round-off of a projection).
-    if !(res_ss > 1e-20 * raw_ss.max(scale * scale * n_valid as f64 * 1e-300)) {
+    if res_ss.is_nan() || res_ss <= 1e-20 * raw_ss {
         return fail(RegionStatus::ConstantSignal);
     }
     let x = std::mem::take(&mut ws.x);
@@ -574,7 +572,7 @@ fn estimate_one(
         ws.acf_plan.acf_into(x, &mut ws.acf)
     };
     let acf = &ws.acf;
-    if !(c0 > 0.0) {
+    if c0.is_nan() || c0 <= 0.0 {
         e.status = [EstimateStatus::NonFiniteInput; 5];
         e.ar1_status = EstimateStatus::NonFiniteInput;
         return e;

@@ -153,7 +153,7 @@ impl NuisanceModel {
                 }
             }
             let norm = dot(&v, &v).sqrt();
-            if !(norm > 1e-8 * norm0) {
+            if norm.is_nan() || norm <= 1e-8 * norm0 {
                 return Err(TimescaleError::RankDeficientDesign { column: name });
             }
             for x in &mut v {
