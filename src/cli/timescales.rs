@@ -139,7 +139,7 @@ pub struct TimescalesArgs {
     #[arg(long, value_name = "N", default_value_t = 0)]
     bootstrap: usize,
 
-    /// Bootstrap block length in frames [default: ceil(sqrt(frames))].
+    /// Bootstrap block length in frames [default: ceil(frames / 10)].
     #[arg(long, value_name = "N")]
     block_frames: Option<usize>,
 

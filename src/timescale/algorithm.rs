@@ -303,8 +303,10 @@ struct Workspace {
 /// deviation (n−1) of the finite replicate values. It reflects sampling
 /// variability of a stationary series whose dependence is shorter than ℓ;
 /// it does not include the bias of the estimator (the bootstrap distribution
-/// is centred on the biased estimate), and block joins add a little spurious
-/// decorrelation, so it is an approximation.
+/// is centred on the biased estimate), and pairs that straddle a block join
+/// are decorrelated, so it is biased low: on AR(1) (φ = 0.8, 1200 frames) the
+/// mean SE was about 0.83–0.90 of the true spread with the default ⌈n/10⌉
+/// blocks (see the integration test). Treat it as a lower-side approximation.
 ///
 /// # Errors
 /// [`TimescaleError`] for anything that stops the whole subject: a mask or
