@@ -8,4 +8,5 @@ mod hierarchy;
 mod io_arrays;
 mod io_h5;
 mod stats;
+mod timescale;
 mod util;

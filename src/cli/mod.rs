@@ -7,6 +7,7 @@ mod gradient;
 mod inspect;
 mod states;
 mod surrogates;
+mod timescales;
 
 use clap::{Parser, Subcommand};
 use std::process::ExitCode;
@@ -29,6 +30,7 @@ enum Command {
     Gradient(gradient::GradientArgs),
     Surrogates(surrogates::SurrogatesArgs),
     Energy(energy::EnergyArgs),
+    Timescales(Box<timescales::TimescalesArgs>),
 }
 
 /// Parse the command line and run the chosen command.
@@ -41,6 +43,7 @@ pub fn run() -> anyhow::Result<ExitCode> {
         Command::Gradient(args) => gradient::run(args),
         Command::Surrogates(args) => surrogates::run(args),
         Command::Energy(args) => energy::run(args),
+        Command::Timescales(args) => timescales::run(*args),
     }
 }
 

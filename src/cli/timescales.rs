@@ -1,0 +1,329 @@
+//! `hierax timescales`: intrinsic timescales of every region of one series.
+
+use anyhow::{bail, Context};
+use clap::{Args, ValueEnum};
+use hierax::io::provenance::{InputRecord, Provenance};
+use hierax::io::table::write_json;
+use hierax::io::validate::{self, Orientation};
+use hierax::io::{read_array, InputSpec};
+use hierax::timescale::{
+    censor_from_displacement, estimate_timescales, BiasCorrection, Confound, Estimator, FitLags,
+    NuisanceSpec, RegionStatus, TimescaleParams,
+};
+use std::path::PathBuf;
+use std::process::ExitCode;
+
+#[derive(Clone, Copy, Debug, PartialEq, Eq, ValueEnum)]
+enum EstimatorArg {
+    /// Every estimator below.
+    All,
+    /// Sum of the initial positive ACF x TR (Watanabe et al. 2019).
+    InitialPositiveSum,
+    /// First lag where the ACF drops to 0.5 (Honey et al. 2012).
+    Acw50,
+    /// First lag where the ACF drops to 0 (Golesorkhi et al. 2021).
+    Acw0,
+    /// Exponential decay fit a(exp(-k TR/tau) + b) (Murray et al. 2014).
+    ExpFit,
+    /// Knee of the Welch spectrum, tau = 1/(2 pi f_knee) (Gao et al. 2020).
+    SpectralKnee,
+}
+
+#[derive(Clone, Copy, Debug, PartialEq, Eq, ValueEnum)]
+enum OrientationArg {
+    /// Rows are frames, columns regions (BIDS derivatives).
+    TimeByRegion,
+    /// Rows are regions, columns frames.
+    RegionByTime,
+}
+
+#[derive(Clone, Copy, Debug, PartialEq, Eq, ValueEnum)]
+enum BiasArg {
+    /// No correction.
+    None,
+    /// Marriott & Pope (1954) lag-1 correction under an AR(1) model (adds AR(1) columns).
+    Ar1,
+}
+
+/// Estimate intrinsic neural timescales of every region of one resting-state
+/// series, from its autocorrelation function and power spectrum.
+///
+/// Writes OUT/timescales.csv (one row per region: each estimate in seconds,
+/// its bootstrap standard error, and a QC status) and OUT/timescales.json
+/// (every parameter, the inputs with their SHA-256 digests, and a summary).
+/// A region that cannot be estimated keeps its row with a non-ok status.
+///
+/// Research software: results are not for clinical decisions.
+#[derive(Debug, Args)]
+#[command(after_help = "Example (invented demo data; TR 0.72 s is a common multiband resting-state value, \
+    no source):\n  \
+    hierax timescales sub-01_bold.tsv --tr 0.72 --orientation time-by-region \\\n    \
+    --estimator acw0 --estimator exp-fit --max-lag 100 --detrend 2 \\\n    \
+    --confounds sub-01_confounds.tsv --confound-columns trans_x,trans_y,rot_z \\\n    \
+    --fd-threshold 0.5 --censor-after 2 --bootstrap 200 --seed 7 --out results/sub-01\n\n\
+    Exit codes: 0 written (regions with a non-ok status are counted on stderr); 2 bad input, nothing written.")]
+pub struct TimescalesArgs {
+    /// The series, PATH[:KEY] (.csv/.tsv/.txt, .npy, .npz:array, .h5:/dataset, .mat:variable).
+    #[arg(value_name = "SERIES")]
+    series: String,
+
+    /// Repetition time in seconds (sampling interval of the frames).
+    #[arg(long, value_name = "SECONDS", allow_hyphen_values = true)]
+    tr: f64,
+
+    /// Layout of SERIES; needed unless a header names the regions or --regions settles it.
+    #[arg(long, value_enum)]
+    orientation: Option<OrientationArg>,
+
+    /// Number of regions, to settle the orientation of an unlabelled matrix.
+    #[arg(long, value_name = "N")]
+    regions: Option<usize>,
+
+    /// Estimators to compute (repeat or comma-separate).
+    #[arg(long, value_enum, value_delimiter = ',', default_value = "all")]
+    estimator: Vec<EstimatorArg>,
+
+    /// Largest ACF lag in frames [default: frames / 4].
+    #[arg(long, value_name = "N")]
+    max_lag: Option<usize>,
+
+    /// Do not subtract the mean before other regressors (the ACF itself always demeans).
+    #[arg(long)]
+    no_demean: bool,
+
+    /// Remove Legendre polynomials up to this degree (fitted on valid frames).
+    #[arg(long, value_name = "ORDER")]
+    detrend: Option<usize>,
+
+    /// Confounds table (TSV/CSV with a header), one row per frame.
+    #[arg(long, value_name = "TABLE")]
+    confounds: Option<String>,
+
+    /// Columns of --confounds to regress out, comma separated.
+    #[arg(long, value_name = "A,B,...", value_delimiter = ',', requires = "confounds")]
+    confound_columns: Vec<String>,
+
+    /// Per-frame 0/1 mask, PATH[:KEY]; 1 keeps a frame.
+    #[arg(long, value_name = "SPEC", conflicts_with = "fd_threshold")]
+    censor_mask: Option<String>,
+
+    /// Censor frames whose framewise displacement (column --fd-column of --confounds) exceeds MM.
+    #[arg(long, value_name = "MM", requires = "confounds")]
+    fd_threshold: Option<f64>,
+
+    /// Column of --confounds holding framewise displacement.
+    #[arg(long, value_name = "NAME", default_value = "framewise_displacement")]
+    fd_column: String,
+
+    /// Also censor the K frames after each frame above --fd-threshold (Power et al. 2012).
+    #[arg(long, value_name = "K", requires = "fd_threshold", default_value_t = 0)]
+    censor_after: usize,
+
+    /// Minimum valid frames for a region to be estimated [default: 2 x max-lag].
+    #[arg(long, value_name = "N")]
+    min_frames: Option<usize>,
+
+    /// Lags of the exponential fit, FIRST:LAST [default: 1 to the first lag with ACF <= 0].
+    #[arg(long, value_name = "FIRST:LAST")]
+    fit_lags: Option<String>,
+
+    /// Welch segment length in frames [default: min(256, frames)].
+    #[arg(long, value_name = "N")]
+    welch_segment: Option<usize>,
+
+    /// Frequency band of the knee fit, LOW:HIGH in Hz [default: all positive frequencies].
+    #[arg(long, value_name = "LOW:HIGH")]
+    knee_band: Option<String>,
+
+    /// Moving-block bootstrap replicates for standard errors (0 = none).
+    #[arg(long, value_name = "N", default_value_t = 0)]
+    bootstrap: usize,
+
+    /// Bootstrap block length in frames [default: ceil(frames / 10)].
+    #[arg(long, value_name = "N")]
+    block_frames: Option<usize>,
+
+    /// Seed of the bootstrap.
+    #[arg(long, value_name = "S", default_value_t = 0)]
+    seed: u64,
+
+    /// Finite-sample bias correction.
+    #[arg(long, value_enum, default_value = "none")]
+    bias_correction: BiasArg,
+
+    /// Worker threads [default: one per core].
+    #[arg(long, value_name = "N")]
+    jobs: Option<usize>,
+
+    /// Output folder (created); receives timescales.csv and timescales.json.
+    #[arg(long, value_name = "DIR")]
+    out: PathBuf,
+}
+
+fn pair<T: std::str::FromStr>(flag: &str, s: &str) -> anyhow::Result<(T, T)> {
+    let parts: Vec<&str> = s.split(':').collect();
+    if let [a, b] = parts[..] {
+        if let (Ok(a), Ok(b)) = (a.trim().parse(), b.trim().parse()) {
+            return Ok((a, b));
+        }
+    }
+    bail!("--{flag} `{s}`: expected two numbers as A:B")
+}
+
+pub fn run(args: TimescalesArgs) -> anyhow::Result<ExitCode> {
+    let spec = InputSpec::parse(&args.series)?;
+    let la = read_array(&spec)?;
+    let orientation = match args.orientation {
+        None => Orientation::Auto,
+        Some(OrientationArg::TimeByRegion) => Orientation::TimeByRegion,
+        Some(OrientationArg::RegionByTime) => Orientation::RegionByTime,
+    };
+    let series = validate::series(&la, orientation, args.regions)?;
+    drop(la);
+    let (n_frames, n_regions) = series.data.dim();
+    let names: Vec<String> =
+        series.names.clone().unwrap_or_else(|| (1..=n_regions).map(|i| format!("region_{i}")).collect());
+    let mut inputs = vec![InputRecord::of("series", &spec)?];
+
+    // Confounds table: every column by header name.
+    let mut confounds: Vec<Confound> = Vec::new();
+    let mut fd: Option<Vec<f64>> = None;
+    if let Some(raw) = &args.confounds {
+        let cspec = InputSpec::parse(raw)?;
+        let table = read_array(&cspec)?;
+        let m = table.matrix()?;
+        let cols = table
+            .col_names
+            .clone()
+            .with_context(|| format!("{cspec}: confounds table: expected a header row naming the columns"))?;
+        if m.nrows() != n_frames {
+            bail!(
+                "{cspec}: confounds table: expected {n_frames} rows (one per frame of {spec}), found {}",
+                m.nrows()
+            );
+        }
+        let column = |name: &str| -> anyhow::Result<Vec<f64>> {
+            let j = cols
+                .iter()
+                .position(|c| c == name)
+                .with_context(|| format!("{cspec}: no column `{name}`; found: {}", cols.join(", ")))?;
+            Ok(m.column(j).to_vec())
+        };
+        for name in &args.confound_columns {
+            confounds.push(Confound { name: name.clone(), values: column(name)? });
+        }
+        if args.fd_threshold.is_some() {
+            fd = Some(column(&args.fd_column)?);
+        }
+        inputs.push(InputRecord::of("confounds", &cspec)?);
+    }
+
+    let (valid, censoring) = if let Some(raw) = &args.censor_mask {
+        let mspec = InputSpec::parse(raw)?;
+        let la = read_array(&mspec)?;
+        let v = validate::frame_mask(&la, n_frames)?;
+        inputs.push(InputRecord::of("censor_mask", &mspec)?);
+        (Some(v), serde_json::json!({"source": "mask", "spec": mspec.to_string()}))
+    } else if let (Some(thr), Some(fd)) = (args.fd_threshold, &fd) {
+        let v = censor_from_displacement(fd, thr, args.censor_after).with_context(|| {
+            format!("{}: column `{}`", args.confounds.as_deref().unwrap_or(""), args.fd_column)
+        })?;
+        (
+            Some(v),
+            serde_json::json!({"source": "framewise_displacement", "column": args.fd_column,
+                               "threshold_mm": thr, "censor_after": args.censor_after}),
+        )
+    } else {
+        (None, serde_json::json!({"source": "none"}))
+    };
+
+    let mut params = TimescaleParams::new(args.tr);
+    params.estimators = if args.estimator.contains(&EstimatorArg::All) {
+        Estimator::ALL.to_vec()
+    } else {
+        args.estimator
+            .iter()
+            .map(|e| match e {
+                EstimatorArg::InitialPositiveSum => Estimator::InitialPositiveSum,
+                EstimatorArg::Acw50 => Estimator::Acw50,
+                EstimatorArg::Acw0 => Estimator::Acw0,
+                EstimatorArg::ExpFit => Estimator::ExpFit,
+                EstimatorArg::SpectralKnee | EstimatorArg::All => Estimator::SpectralKnee,
+            })
+            .collect()
+    };
+    params.max_lag = args.max_lag;
+    params.nuisance = NuisanceSpec {
+        demean: !args.no_demean,
+        detrend_order: args.detrend,
+        confounds: args.confound_columns.clone(),
+    };
+    params.min_frames = args.min_frames;
+    if let Some(s) = &args.fit_lags {
+        let (first, last) = pair::<usize>("fit-lags", s)?;
+        params.fit_lags = FitLags::Range { first, last };
+    }
+    params.welch_segment = args.welch_segment;
+    if let Some(s) = &args.knee_band {
+        params.knee_band_hz = Some(pair::<f64>("knee-band", s)?);
+    }
+    params.bootstrap = args.bootstrap;
+    params.block_frames = args.block_frames;
+    params.seed = args.seed;
+    params.bias_correction = match args.bias_correction {
+        BiasArg::None => BiasCorrection::None,
+        BiasArg::Ar1 => BiasCorrection::Ar1,
+    };
+    params.threads = args.jobs;
+    let valid_params = params.check(n_frames).with_context(|| spec.to_string())?;
+    let result = estimate_timescales(series.data.view(), &names, valid.as_deref(), &confounds, &valid_params)
+        .with_context(|| spec.to_string())?;
+
+    let ok = result.regions.iter().filter(|r| r.status == RegionStatus::Ok).count();
+    if ok == 0 {
+        let first = result.regions.first().map(|r| r.status.as_str()).unwrap_or("no regions");
+        bail!(
+            "{spec}: no region could be estimated (first region: {first}; {} valid of {} frames, --min-frames {})",
+            result.n_valid_frames,
+            n_frames,
+            valid_params.min_frames
+        );
+    }
+    let table = result.to_table();
+    let mut status_counts = std::collections::BTreeMap::<String, usize>::new();
+    for r in &result.regions {
+        *status_counts.entry(result.qc_string(r)).or_default() += 1;
+    }
+    let mut prov = Provenance::new(
+        "timescales",
+        serde_json::json!({"timescale": valid_params, "censoring": censoring,
+                           "orientation": series.orientation}),
+    );
+    prov.inputs = inputs;
+    let summary = serde_json::json!({
+        "n_regions": n_regions,
+        "n_frames": n_frames,
+        "n_valid_frames": result.n_valid_frames,
+        "n_regions_flagged": result.n_flagged(),
+        "status_counts": status_counts,
+        "notes": series.notes,
+        "columns": table.names(),
+    });
+    let csv = args.out.join("timescales.csv");
+    let json = args.out.join("timescales.json");
+    table.write_csv(&csv)?;
+    if let Err(e) = write_json(&json, &serde_json::json!({"provenance": prov, "summary": summary})) {
+        // Never leave half an output: the table without its provenance.
+        let _ = std::fs::remove_file(&csv);
+        return Err(e.into());
+    }
+    let flagged = result.n_flagged();
+    if flagged > 0 {
+        eprintln!(
+            "hierax: warning: {flagged} of {n_regions} regions have a non-ok status (see the `status` column of {})",
+            csv.display()
+        );
+    }
+    println!("wrote {} and {}", csv.display(), json.display());
+    Ok(ExitCode::SUCCESS)
+}

@@ -1,0 +1,70 @@
+//! Errors of the `timescale` module. Each variant carries the value that was
+//! rejected and what was expected, so the message is one line a user can act on.
+
+/// An error that stops a whole subject (a per-region problem is a
+/// [`RegionStatus`](super::RegionStatus) instead).
+#[derive(Debug, Clone, PartialEq, thiserror::Error)]
+#[non_exhaustive]
+pub enum TimescaleError {
+    /// A parameter is outside its allowed range.
+    #[error("parameter `{name}` = {value}: expected {expected}")]
+    InvalidParameter {
+        /// The parameter, as the command line names it.
+        name: &'static str,
+        /// The value given.
+        value: String,
+        /// The allowed range or set.
+        expected: String,
+    },
+    /// The series has fewer frames than the analysis needs.
+    #[error("series has {n_frames} frames ({n_valid} valid), {need}")]
+    SeriesTooShort {
+        /// Frames in the series.
+        n_frames: usize,
+        /// Frames left after censoring.
+        n_valid: usize,
+        /// What the frames were needed for.
+        need: String,
+    },
+    /// A per-frame input (mask, confounds) does not have one entry per frame.
+    #[error("{what} has {found} frames, but the series has {expected}")]
+    FrameCountMismatch {
+        /// "censoring mask", "confounds", ...
+        what: String,
+        /// Frames in the series.
+        expected: usize,
+        /// Frames in the per-frame input.
+        found: usize,
+    },
+    /// A frame that is not censored holds non-finite values in every region.
+    #[error("frame {frame} (1-based) is non-finite in every region; censor it (--censor-mask) or remove it")]
+    NonFiniteFrame {
+        /// The frame, 1-based.
+        frame: usize,
+    },
+    /// A confound column is non-finite on a valid frame.
+    #[error("confound `{column}` is non-finite at frame {frame} (1-based), which is not censored")]
+    NonFiniteConfound {
+        /// The column.
+        column: String,
+        /// The frame, 1-based.
+        frame: usize,
+    },
+    /// The nuisance design (polynomial trend + confounds) is rank deficient.
+    #[error(
+        "nuisance regressor `{column}` is (nearly) a linear combination of the earlier ones on the valid \
+         frames; drop it"
+    )]
+    RankDeficientDesign {
+        /// The regressor that added nothing new.
+        column: String,
+    },
+    /// Framewise displacement is non-finite where it must be defined.
+    #[error(
+        "framewise displacement is non-finite at frame {frame} (1-based); only the first frame may be n/a"
+    )]
+    NonFiniteDisplacement {
+        /// The frame, 1-based.
+        frame: usize,
+    },
+}
