@@ -69,3 +69,27 @@ fn ks_uniform_matches_scipy_kstest() {
         close(p, num(&case["pvalue"]), rtol, "KS p-value");
     }
 }
+
+#[test]
+fn ols_matches_statsmodels() {
+    use hierax::stats::regression::ols;
+    let f = fixture();
+    let o = &f["ols"];
+    let rows: Vec<Vec<f64>> = o["X"].as_array().unwrap().iter().map(nums).collect();
+    let x = ndarray::Array2::from_shape_fn((rows.len(), rows[0].len()), |(i, j)| rows[i][j]);
+    let terms: Vec<&str> = o["terms"].as_array().unwrap().iter().map(|t| t.as_str().unwrap()).collect();
+    let fit = ols(&x, &nums(&o["y"]), &terms).unwrap();
+    // QR (faer) versus statsmodels' pinv route: both backward stable, 1e-10 relative.
+    for (what, got, want) in
+        [("coef", &fit.coef, nums(&o["coef"])), ("se", &fit.se, nums(&o["se"])), ("t", &fit.t, nums(&o["t"]))]
+    {
+        for (g, w) in got.iter().zip(&want) {
+            close(*g, *w, 1e-10, &format!("OLS {what}"));
+        }
+    }
+    for (g, w) in fit.p_value.iter().zip(nums(&o["p"])) {
+        close(*g, w, 1e-8, "OLS p-value");
+    }
+    close(fit.r_squared, num(&o["r_squared"]), 1e-12, "OLS R2");
+    assert_eq!(fit.df_resid as u64, o["df_resid"].as_u64().unwrap());
+}

@@ -6,6 +6,7 @@ mod energy;
 mod gradient;
 mod inspect;
 mod states;
+mod subject;
 mod surrogates;
 mod timescales;
 
@@ -31,6 +32,7 @@ enum Command {
     Surrogates(surrogates::SurrogatesArgs),
     Energy(energy::EnergyArgs),
     Timescales(Box<timescales::TimescalesArgs>),
+    Subject(Box<subject::SubjectArgs>),
 }
 
 /// Parse the command line and run the chosen command.
@@ -44,6 +46,7 @@ pub fn run() -> anyhow::Result<ExitCode> {
         Command::Surrogates(args) => surrogates::run(args),
         Command::Energy(args) => energy::run(args),
         Command::Timescales(args) => timescales::run(*args),
+        Command::Subject(args) => subject::run(*args),
     }
 }
 

@@ -30,6 +30,14 @@ pub enum CohortError {
         /// The pattern.
         pattern: String,
     },
+    /// A step of the per-subject job failed; the message names the input.
+    #[error("{step}: {message}")]
+    Step {
+        /// The step ("timescales", "control", ...).
+        step: String,
+        /// What failed, naming the file where one is at fault.
+        message: String,
+    },
     /// A value in the participants table is malformed.
     #[error("{path}: line {line}: {reason}")]
     BadRow {

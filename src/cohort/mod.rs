@@ -10,6 +10,8 @@
 
 mod error;
 pub mod manifest;
+pub mod run;
+pub mod subject;
 
 pub use error::CohortError;
 pub use manifest::{Manifest, Participant, Patterns};

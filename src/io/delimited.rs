@@ -16,7 +16,7 @@
 //! * A KEY selects one column by header name.
 
 use super::{read_bytes, InputSpec, IoError, LoadedArray, StoredType};
-use ndarray::{Array2, IxDyn};
+use ndarray::Array2;
 
 /// Field separator of a delimited file.
 #[derive(Clone, Copy, Debug, PartialEq, Eq)]
@@ -82,13 +82,19 @@ fn split_records(text: &str, sep: Separator, spec: &InputSpec) -> Result<Vec<(us
     Ok(rows)
 }
 
-/// Read a delimited table as a matrix of numbers.
-///
-/// # Errors
-/// [`IoError::Format`] naming the line and column of a cell that is not a
-/// number, or of a row whose length differs from the first;
-/// [`IoError::MissingKey`] when KEY names no column.
-pub fn read(spec: &InputSpec, sep: Separator) -> Result<LoadedArray, IoError> {
+/// A delimited file split into header, row names and cells, before any
+/// cell is read as a number.
+struct TextTable {
+    col_names: Option<Vec<String>>,
+    row_names: Option<Vec<String>>,
+    /// (line, cells of the data columns only).
+    rows: Vec<(usize, Vec<String>)>,
+    ncol: usize,
+    /// 1-based column offset of the first data column in the file.
+    first: usize,
+}
+
+fn parse_table(spec: &InputSpec, sep: Separator) -> Result<TextTable, IoError> {
     let bytes = read_bytes(&spec.path)?;
     let text = String::from_utf8(bytes).map_err(|_| IoError::format(&spec.path, "is not UTF-8 text"))?;
     let text = text.strip_prefix('\u{feff}').unwrap_or(&text);
@@ -96,7 +102,6 @@ pub fn read(spec: &InputSpec, sep: Separator) -> Result<LoadedArray, IoError> {
     if rows.is_empty() {
         return Err(IoError::format(&spec.path, "holds no data rows"));
     }
-
     let header_row = rows[0].1.iter().any(|c| matches!(classify(c), Cell::Text));
     let header = if header_row { Some(rows.remove(0)) } else { None };
     if rows.is_empty() {
@@ -109,28 +114,25 @@ pub fn read(spec: &InputSpec, sep: Separator) -> Result<LoadedArray, IoError> {
         return Err(IoError::format(&spec.path, "has row names but no numeric columns"));
     }
     let ncol = width - first;
-
-    let mut col_names = header.map(|(line, h)| {
-        let names: Vec<String> = h.iter().map(|c| c.trim().to_string()).collect();
-        (line, names)
-    });
-    if let Some((line, names)) = &mut col_names {
-        // A header over the row-name column may or may not name it.
-        if names.len() == width {
-            names.drain(..first);
-        } else if names.len() != ncol {
-            return Err(IoError::format(
-                &spec.path,
-                format!("line {line}: header has {} names for {ncol} data columns", names.len()),
-            ));
+    let col_names = match header {
+        None => None,
+        Some((line, h)) => {
+            let mut names: Vec<String> = h.iter().map(|c| c.trim().to_string()).collect();
+            // A header over the row-name column may or may not name it.
+            if names.len() == width {
+                names.drain(..first);
+            } else if names.len() != ncol {
+                return Err(IoError::format(
+                    &spec.path,
+                    format!("line {line}: header has {} names for {ncol} data columns", names.len()),
+                ));
+            }
+            Some(names)
         }
-    }
-    let col_names = col_names.map(|(_, n)| n);
-
-    let mut values = Vec::with_capacity(rows.len() * ncol);
+    };
     let mut row_names = Vec::new();
-    let mut missing = 0usize;
-    for (line, row) in &rows {
+    let mut data_rows = Vec::with_capacity(rows.len());
+    for (line, mut row) in rows {
         if row.len() != width {
             return Err(IoError::format(
                 &spec.path,
@@ -140,7 +142,52 @@ pub fn read(spec: &InputSpec, sep: Separator) -> Result<LoadedArray, IoError> {
         if has_row_names {
             row_names.push(row[0].trim().to_string());
         }
-        for (j, cell) in row[first..].iter().enumerate() {
+        row.drain(..first);
+        data_rows.push((line, row));
+    }
+    Ok(TextTable { col_names, row_names: has_row_names.then_some(row_names), rows: data_rows, ncol, first })
+}
+
+/// The data columns a KEY selects: one name, or several separated by commas.
+fn select_columns(spec: &InputSpec, t: &TextTable) -> Result<Vec<usize>, IoError> {
+    let Some(key) = &spec.key else {
+        return Ok((0..t.ncol).collect());
+    };
+    let names = t.col_names.as_ref().ok_or_else(|| IoError::MissingKey {
+        path: spec.path.clone(),
+        kind: "column",
+        key: key.clone(),
+        available: "(no header row)".into(),
+    })?;
+    key.split(',')
+        .map(|k| {
+            let k = k.trim();
+            names.iter().position(|n| n == k).ok_or_else(|| IoError::MissingKey {
+                path: spec.path.clone(),
+                kind: "column",
+                key: k.to_string(),
+                available: names.join(", "),
+            })
+        })
+        .collect()
+}
+
+/// Read a delimited table as a matrix of numbers. A KEY naming one column
+/// gives a vector; a KEY naming several (`x,y,z`) gives those columns in that
+/// order; only the selected columns need to be numeric.
+///
+/// # Errors
+/// [`IoError::Format`] naming the line and column of a cell that is not a
+/// number, or of a row whose length differs from the first;
+/// [`IoError::MissingKey`] when KEY names no column.
+pub fn read(spec: &InputSpec, sep: Separator) -> Result<LoadedArray, IoError> {
+    let t = parse_table(spec, sep)?;
+    let cols = select_columns(spec, &t)?;
+    let mut values = Vec::with_capacity(t.rows.len() * cols.len());
+    let mut missing = 0usize;
+    for (line, row) in &t.rows {
+        for &j in &cols {
+            let cell = &row[j];
             match classify(cell) {
                 Cell::Number(v) => values.push(v),
                 Cell::Missing => {
@@ -150,50 +197,43 @@ pub fn read(spec: &InputSpec, sep: Separator) -> Result<LoadedArray, IoError> {
                 Cell::Text => {
                     return Err(IoError::format(
                         &spec.path,
-                        format!("line {line}, column {}: `{}` is not a number", j + first + 1, cell.trim()),
+                        format!("line {line}, column {}: `{}` is not a number", j + t.first + 1, cell.trim()),
                     ))
                 }
             }
         }
     }
-    let matrix = Array2::from_shape_vec((rows.len(), ncol), values).expect("row lengths checked");
-
-    let mut out = match &spec.key {
-        None => LoadedArray::new(spec.clone(), matrix.into_dyn(), StoredType::Text),
-        Some(key) => {
-            let names = col_names.as_ref().ok_or_else(|| IoError::MissingKey {
-                path: spec.path.clone(),
-                kind: "column",
-                key: key.clone(),
-                available: "(no header row)".into(),
-            })?;
-            let j = names.iter().position(|n| n == key).ok_or_else(|| IoError::MissingKey {
-                path: spec.path.clone(),
-                kind: "column",
-                key: key.clone(),
-                available: names.join(", "),
-            })?;
-            let col = matrix.column(j).to_owned();
-            let n = col.len();
-            let mut la = LoadedArray::new(
-                spec.clone(),
-                col.into_shape_with_order(IxDyn(&[n])).expect("1-D"),
-                StoredType::Text,
-            );
-            la.col_names = Some(vec![key.clone()]);
-            la
-        }
+    let nrow = t.rows.len();
+    let data = if spec.key.is_some() && cols.len() == 1 {
+        ndarray::Array1::from(values).into_dyn()
+    } else {
+        Array2::from_shape_vec((nrow, cols.len()), values).expect("row lengths checked").into_dyn()
     };
-    if out.col_names.is_none() {
-        out.col_names = col_names;
-    }
-    if has_row_names {
-        out.row_names = Some(row_names);
-    }
+    let mut out = LoadedArray::new(spec.clone(), data, StoredType::Text);
+    out.col_names = t.col_names.as_ref().map(|names| cols.iter().map(|&j| names[j].clone()).collect());
+    out.row_names = t.row_names;
     if missing > 0 {
         out.notes.push(format!("{missing} missing cell(s) (empty, n/a, NA, NaN) read as NaN"));
     }
     Ok(out)
+}
+
+/// Read one column of a delimited table as text labels (e.g. a hemisphere
+/// column of `L`/`R`). The KEY must name exactly one column.
+///
+/// # Errors
+/// [`IoError::Spec`] without a single-column key, [`IoError::MissingKey`]
+/// when it names no column, and the errors of [`read`] for a malformed file.
+pub fn read_labels(spec: &InputSpec, sep: Separator) -> Result<Vec<String>, IoError> {
+    let t = parse_table(spec, sep)?;
+    let cols = select_columns(spec, &t)?;
+    if spec.key.is_none() || cols.len() != 1 {
+        return Err(IoError::Spec {
+            spec: spec.to_string(),
+            reason: "name exactly one column as PATH:COLUMN".into(),
+        });
+    }
+    Ok(t.rows.iter().map(|(_, r)| r[cols[0]].trim().to_string()).collect())
 }
 
 #[cfg(test)]
@@ -231,6 +271,20 @@ mod tests {
         let la = read(&spec, Separator::Tab).unwrap();
         assert_eq!(la.data.shape(), &[2]);
         assert_eq!(la.data[[0]], 0.1);
+        spec.key = Some("trans_x,framewise_displacement".into());
+        let la = read(&spec, Separator::Tab).unwrap();
+        assert_eq!(la.data.shape(), &[2, 2]);
+        assert_eq!(la.data[[1, 0]], 2.0);
+    }
+
+    #[test]
+    fn only_selected_columns_must_be_numbers_and_labels_read_as_text() {
+        let (_d, mut spec) = write_tmp("r.tsv", "region\themi\tx\nA\tL\t1.5\nB\tR\t2\n");
+        assert!(read(&spec, Separator::Tab).is_err());
+        spec.key = Some("x".into());
+        assert_eq!(read(&spec, Separator::Tab).unwrap().data.len(), 2);
+        spec.key = Some("hemi".into());
+        assert_eq!(read_labels(&spec, Separator::Tab).unwrap(), vec!["L", "R"]);
     }
 
     #[test]

@@ -51,6 +51,100 @@ pub fn least_squares_line(x: &[f64], y: &[f64]) -> Result<Line, StatsError> {
     Ok(Line { slope, intercept: my - slope * mx, r_squared, n: x.len() })
 }
 
+/// An ordinary least-squares fit with covariates.
+#[derive(Clone, Debug, PartialEq, serde::Serialize)]
+pub struct OlsFit {
+    /// Term names, in design-column order.
+    pub terms: Vec<String>,
+    /// Coefficients β.
+    pub coef: Vec<f64>,
+    /// Standard errors √(σ̂² [(XᵀX)⁻¹]_jj).
+    pub se: Vec<f64>,
+    /// t statistics β_j / se_j.
+    pub t: Vec<f64>,
+    /// Two-sided p-values from Student's t with n − p degrees of freedom.
+    pub p_value: Vec<f64>,
+    /// Residual degrees of freedom n − p.
+    pub df_resid: usize,
+    /// R² = 1 − RSS/TSS (TSS about the mean).
+    pub r_squared: f64,
+    /// Number of observations.
+    pub n: usize,
+}
+
+/// Ordinary least squares y ≈ Xβ by a Householder QR factorisation of X
+/// (faer), never forming XᵀX: β solves Rβ = Qᵀy, and
+/// (XᵀX)⁻¹ = R⁻¹R⁻ᵀ gives the classical standard errors with
+/// σ̂² = RSS/(n − p) (Gauss–Markov; e.g. Seber & Lee 2003, Linear Regression
+/// Analysis, ch. 3). Matches statsmodels 0.14 `OLS(y, X).fit()` (non-robust
+/// covariance). Include a column of ones in X for an intercept.
+///
+/// # Errors
+/// [`StatsError::LengthMismatch`] when X and y differ in rows;
+/// [`StatsError::TooFew`] unless n > p and every value is finite;
+/// [`StatsError::Constant`] when X is rank deficient (a term is a linear
+/// combination of others), detected from the diagonal of R.
+pub fn ols(x: &ndarray::Array2<f64>, y: &[f64], terms: &[&str]) -> Result<OlsFit, StatsError> {
+    use faer::prelude::SolveLstsq;
+    let (n, p) = x.dim();
+    if n != y.len() || terms.len() != p {
+        return Err(StatsError::LengthMismatch { left: n, right: y.len() });
+    }
+    let finite = x.iter().all(|v| v.is_finite()) && y.iter().all(|v| v.is_finite());
+    if n <= p || p == 0 || !finite {
+        return Err(StatsError::TooFew { statistic: "ordinary least squares", needed: p + 1, found: n });
+    }
+    let xm = faer::Mat::from_fn(n, p, |i, j| x[[i, j]]);
+    let ym = faer::Mat::from_fn(n, 1, |i, _| y[i]);
+    let qr = xm.qr();
+    let r = qr.thin_R();
+    let rmax = (0..p).map(|j| r[(j, j)].abs()).fold(0.0f64, f64::max);
+    if (0..p).any(|j| r[(j, j)].abs() <= rmax * f64::EPSILON * n as f64) {
+        return Err(StatsError::Constant { statistic: "ordinary least squares (rank-deficient design)" });
+    }
+    let beta = qr.solve_lstsq(&ym);
+    let coef: Vec<f64> = (0..p).map(|j| beta[(j, 0)]).collect();
+    let mut rss = 0.0;
+    for i in 0..n {
+        let fit: f64 = (0..p).map(|j| x[[i, j]] * coef[j]).sum();
+        rss += (y[i] - fit) * (y[i] - fit);
+    }
+    let ybar = y.iter().sum::<f64>() / n as f64;
+    let tss: f64 = y.iter().map(|v| (v - ybar) * (v - ybar)).sum();
+    let df = n - p;
+    let sigma2 = rss / df as f64;
+    // R⁻¹ by back substitution (p is small: a handful of covariates).
+    let mut rinv = vec![0.0f64; p * p];
+    for j in 0..p {
+        rinv[j * p + j] = 1.0 / r[(j, j)];
+        for i in (0..j).rev() {
+            let s: f64 = ((i + 1)..=j).map(|k| r[(i, k)] * rinv[k * p + j]).sum();
+            rinv[i * p + j] = -s / r[(i, i)];
+        }
+    }
+    let se: Vec<f64> =
+        (0..p).map(|j| (sigma2 * (0..p).map(|k| rinv[j * p + k].powi(2)).sum::<f64>()).sqrt()).collect();
+    let tdist = statrs::distribution::StudentsT::new(0.0, 1.0, df as f64).expect("df >= 1");
+    let t: Vec<f64> = coef.iter().zip(&se).map(|(b, s)| b / s).collect();
+    let p_value = t
+        .iter()
+        .map(|v| {
+            use statrs::distribution::ContinuousCDF;
+            (2.0 * tdist.sf(v.abs())).min(1.0)
+        })
+        .collect();
+    Ok(OlsFit {
+        terms: terms.iter().map(|s| s.to_string()).collect(),
+        coef,
+        se,
+        t,
+        p_value,
+        df_resid: df,
+        r_squared: if tss > 0.0 { 1.0 - rss / tss } else { f64::NAN },
+        n,
+    })
+}
+
 #[cfg(test)]
 mod tests {
     use super::*;

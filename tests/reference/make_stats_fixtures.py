@@ -73,3 +73,19 @@ data = json.loads(OUT.read_text())
 data["kstest_uniform"] = ks_cases
 OUT.write_text(json.dumps(data, indent=1) + "\n")
 print("added kstest cases")
+
+# Ordinary least squares with covariates: statsmodels OLS (non-robust covariance).
+import statsmodels.api as sm
+n = 40
+age = rng.uniform(8, 23, size=n)
+sex = rng.integers(0, 2, size=n).astype(float)
+fd = rng.gamma(2.0, 0.1, size=n)
+y = -3.0 + 0.08 * age + 0.3 * sex - 1.5 * fd + rng.normal(scale=0.4, size=n)
+X = np.column_stack([np.ones(n), age, sex, fd])
+res = sm.OLS(y, X).fit()
+data = json.loads(OUT.read_text())
+data["ols"] = {"X": [f(row) for row in X], "y": f(y), "terms": ["intercept", "age", "sex", "fd"],
+               "coef": f(res.params), "se": f(res.bse), "t": f(res.tvalues), "p": f(res.pvalues),
+               "r_squared": f(res.rsquared)[0], "df_resid": int(res.df_resid)}
+OUT.write_text(json.dumps(data, indent=1) + "\n")
+print("added OLS case")

@@ -24,21 +24,8 @@ import pathlib
 import numpy as np
 import scipy
 import statsmodels
-import statsmodels.compat.pandas as _sm_pandas
 from scipy import optimize, signal
-
-
-def _deprecate_kwarg_compat(old_arg_name, new_arg_name, *args, **kwargs):
-    # statsmodels 0.14.4 calls pandas' private deprecate_kwarg(old, new), whose
-    # signature pandas 3 changed to (klass, old, new); the reference environment
-    # ships pandas 3.1.1, so `statsmodels.tsa.stattools` would not import.
-    # The decorator only renames a long-deprecated keyword (`unbiased`), which
-    # this script never passes, so an identity decorator is exact for our use.
-    return lambda f: f
-
-
-_sm_pandas.deprecate_kwarg = _deprecate_kwarg_compat
-from statsmodels.tsa.stattools import acf  # noqa: E402
+from statsmodels.tsa.stattools import acf
 
 OUT = pathlib.Path(__file__).resolve().parents[1] / "data" / "timescale" / "fixtures.json"
 

@@ -1,0 +1,252 @@
+//! `hierax subject`: the whole per-subject job.
+
+use anyhow::Context;
+use clap::Args;
+use hierax::cohort::subject::{run_subject, NullModel, SubjectConfig, SubjectInputs, SubjectReport};
+use hierax::control::{SystemParams, TimeModel};
+use hierax::io::InputSpec;
+use std::collections::BTreeMap;
+use std::path::PathBuf;
+use std::process::ExitCode;
+
+/// Command-line spelling of [`NullModel`].
+#[derive(Clone, Copy, Debug, clap::ValueEnum)]
+pub enum NullModelArg {
+    /// Degree-preserving edge swaps (Maslov & Sneppen 2002).
+    Degree,
+    /// Swaps, then weights matched to node strengths (after Rubinov & Sporns 2011).
+    Strength,
+    /// Swaps that keep each edge's length bin (after Betzel & Bassett 2018); needs --distances.
+    Geometry,
+}
+
+/// Command-line spelling of [`TimeModel`].
+#[derive(Clone, Copy, Debug, clap::ValueEnum)]
+pub enum TimeModelArg {
+    /// dx/dt = Ãx + Bu with Ã = A/(c + λmax) − I.
+    Continuous,
+    /// x(t+1) = Ãx(t) + Bu(t) with Ã = A/(c + λmax).
+    Discrete,
+}
+
+/// Options of the per-subject job shared by `subject` and `demo`.
+#[derive(Debug, Clone, Args)]
+pub struct JobOptions {
+    /// Number of states (equal-count bins along the hierarchy map).
+    #[arg(long, default_value_t = 10, value_name = "K")]
+    pub bins: usize,
+
+    /// Rank regions by descending map value (default: ascending = towards association).
+    #[arg(long)]
+    pub descending: bool,
+
+    /// Timescale column that enters the link: ips_tau_s, acw50_s, acw50_interp_s, acw0_s, acw0_interp_s,
+    /// exp_tau_s or knee_tau_s.
+    #[arg(long, default_value = "ips_tau_s", value_name = "COLUMN")]
+    pub timescale: String,
+
+    /// Censor frames whose framewise displacement exceeds this (mm); needs --confounds in `subject`.
+    #[arg(long, default_value_t = 0.5, value_name = "MM")]
+    pub fd_threshold: f64,
+
+    /// Do not censor frames.
+    #[arg(long, conflicts_with = "fd_threshold")]
+    pub no_censoring: bool,
+
+    /// Also censor this many frames after each high-motion frame.
+    #[arg(long, default_value_t = 0, value_name = "K")]
+    pub censor_after: usize,
+
+    /// Confound columns to regress out, comma separated (e.g. global_signal,trans_x).
+    #[arg(long, value_delimiter = ',', value_name = "COLUMNS")]
+    pub confound_columns: Vec<String>,
+
+    /// Remove Legendre polynomial trends up to this order.
+    #[arg(long, value_name = "ORDER")]
+    pub detrend: Option<usize>,
+
+    /// Time model of the network.
+    #[arg(long, value_enum, default_value = "continuous")]
+    pub time_model: TimeModelArg,
+
+    /// Control horizon T (time units; steps for discrete time).
+    #[arg(long, default_value_t = 1.0, value_name = "T")]
+    pub horizon: f64,
+
+    /// Stability offset c in A/(c + λmax(A)).
+    #[arg(long, default_value_t = 1.0, value_name = "C")]
+    pub stability_offset: f64,
+
+    /// Number of rewired networks for network nulls (0 = none).
+    #[arg(long, default_value_t = 0, value_name = "M")]
+    pub network_nulls: usize,
+
+    /// Network null model.
+    #[arg(long, value_enum, default_value = "degree")]
+    pub null_model: NullModelArg,
+
+    /// Number of spun hierarchy maps for map nulls (0 = none; needs --sphere).
+    #[arg(long, default_value_t = 0, value_name = "M")]
+    pub map_nulls: usize,
+
+    /// Seed of every random draw.
+    #[arg(long, default_value_t = 0)]
+    pub seed: u64,
+}
+
+impl JobOptions {
+    /// The library configuration for repetition time `tr_s`.
+    pub fn config(&self, tr_s: f64, directed: bool) -> SubjectConfig {
+        let mut c = SubjectConfig::new(tr_s);
+        c.directed = directed;
+        c.bins = self.bins;
+        c.descending = self.descending;
+        c.timescale_column = self.timescale.clone();
+        c.fd_threshold_mm = if self.no_censoring { None } else { Some(self.fd_threshold) };
+        c.censor_after = self.censor_after;
+        c.confound_columns = self.confound_columns.clone();
+        c.detrend_order = self.detrend;
+        let mut sys = SystemParams::new();
+        sys.time_model = match self.time_model {
+            TimeModelArg::Continuous => TimeModel::Continuous,
+            TimeModelArg::Discrete => TimeModel::Discrete,
+        };
+        sys.horizon = self.horizon;
+        sys.stability_offset = self.stability_offset;
+        c.system = sys;
+        c.network_nulls = self.network_nulls;
+        c.null_model = match self.null_model {
+            NullModelArg::Degree => NullModel::Degree,
+            NullModelArg::Strength => NullModel::Strength,
+            NullModelArg::Geometry => NullModel::Geometry,
+        };
+        c.map_nulls = self.map_nulls;
+        c.seed = self.seed;
+        c
+    }
+}
+
+/// Run the whole per-subject job: timescales, states along the hierarchy,
+/// control energies of every state pair, asymmetry summaries and null
+/// models. Writes OUT/SUBJECT/ with one HDF5 file, CSV tables and a JSON
+/// summary, all or nothing.
+#[derive(Debug, Args)]
+#[command(after_help = "Example (the bundled invented data):\n  \
+    hierax subject --subject sub-01 --tr 2 \\\n    \
+    --connectome demo-data/sub-01/sub-01_connectome.csv \\\n    \
+    --series demo-data/sub-01/sub-01_bold.npy \\\n    \
+    --map demo-data/atlas/hierarchy.csv \\\n    \
+    --confounds demo-data/sub-01/sub-01_confounds.tsv --confound-columns global_signal,trans_x,trans_y \\\n    \
+    --sphere demo-data/atlas/regions.tsv:sphere_x,sphere_y,sphere_z \\\n    \
+    --hemisphere demo-data/atlas/regions.tsv:hemisphere \\\n    \
+    --network-nulls 100 --map-nulls 100 --out results")]
+pub struct SubjectArgs {
+    /// Subject name for the output folder and files.
+    #[arg(long, default_value = "sub-01")]
+    subject: String,
+
+    /// Structural connectome, PATH[:KEY].
+    #[arg(long, value_name = "SPEC")]
+    connectome: String,
+
+    /// Resting-state series (frames x regions), PATH[:KEY].
+    #[arg(long, value_name = "SPEC")]
+    series: String,
+
+    /// Hierarchy map, one value per region, PATH[:KEY].
+    #[arg(long, value_name = "SPEC")]
+    map: String,
+
+    /// Repetition time in seconds.
+    #[arg(long, value_name = "SECONDS")]
+    tr: f64,
+
+    /// Confounds table with framewise_displacement (BIDS confounds TSV).
+    #[arg(long, value_name = "SPEC")]
+    confounds: Option<String>,
+
+    /// Region distances (n x n) for geometry-preserving nulls.
+    #[arg(long, value_name = "SPEC")]
+    distances: Option<String>,
+
+    /// Parcel coordinates on a sphere (n x 3) for spin nulls, e.g. regions.tsv:sphere_x,sphere_y,sphere_z.
+    #[arg(long, value_name = "SPEC")]
+    sphere: Option<String>,
+
+    /// Hemisphere per parcel (L/R or 0/1), e.g. regions.tsv:hemisphere.
+    #[arg(long, value_name = "SPEC")]
+    hemisphere: Option<String>,
+
+    /// The connectome is directed.
+    #[arg(long)]
+    directed: bool,
+
+    #[command(flatten)]
+    job: JobOptions,
+
+    /// Output folder (the subject's folder is created inside).
+    #[arg(long, default_value = "hierax-output")]
+    out: PathBuf,
+}
+
+fn spec(s: &Option<String>) -> anyhow::Result<Option<InputSpec>> {
+    s.as_deref().map(InputSpec::parse).transpose().map_err(Into::into)
+}
+
+/// One screen of text about a subject's results.
+pub fn print_summary(r: &SubjectReport) {
+    let s = &r.summary;
+    println!("{}: {} regions, {} of {} frames kept", r.subject, r.n_regions, r.n_valid_frames, r.n_frames);
+    println!(
+        "  energy        bottom-up mean {:.4}, top-down mean {:.4}, difference {:+.4}",
+        s.mean_bottom_up_energy, s.mean_top_down_energy, s.bottom_up_minus_top_down
+    );
+    println!(
+        "  asymmetry     slope vs distance {:+.4} per bin (Spearman {:+.3}, p {:.2e})",
+        s.asymmetry_vs_distance_line.slope,
+        s.asymmetry_vs_distance_spearman.r,
+        s.asymmetry_vs_distance_spearman.p_value
+    );
+    if let Some(c) = &s.asymmetry_vs_timescale_shift_spearman {
+        println!(
+            "  timescales    asymmetry vs target-minus-initial timescale: Spearman {:+.3} (p {:.2e})",
+            c.r, c.p_value
+        );
+    }
+    if let Some(r) = r.timescale_vs_hierarchy_spearman {
+        println!("                timescale vs hierarchy map: Spearman {r:+.3}");
+    }
+    println!(
+        "  numerics      Gramian condition {:.3e}, max terminal error {:.2e}",
+        r.gramian_condition, r.terminal_error_max
+    );
+    for t in &r.tests {
+        println!(
+            "  null test     {}: observed {:+.4}, null mean {:+.4}, p {:.4} (FDR {:.4}, {} nulls)",
+            t.name, t.observed, t.null_mean, t.p_value, t.p_fdr, t.n_null
+        );
+    }
+    for n in &r.notes {
+        println!("  note          {n}");
+    }
+    println!("  written to    {}", r.output.display());
+}
+
+pub fn run(args: SubjectArgs) -> anyhow::Result<ExitCode> {
+    let inputs = SubjectInputs {
+        subject: args.subject.clone(),
+        connectome: InputSpec::parse(&args.connectome)?,
+        series: InputSpec::parse(&args.series)?,
+        map: InputSpec::parse(&args.map)?,
+        confounds: spec(&args.confounds)?,
+        distances: spec(&args.distances)?,
+        sphere: spec(&args.sphere)?,
+        hemisphere: spec(&args.hemisphere)?,
+        covariates: BTreeMap::new(),
+    };
+    let cfg = args.job.config(args.tr, args.directed);
+    let report = run_subject(&inputs, &cfg, &args.out).with_context(|| args.subject.clone())?;
+    print_summary(&report);
+    println!("Research software: results are not for clinical decisions.");
+    Ok(ExitCode::SUCCESS)
+}
