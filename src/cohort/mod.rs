@@ -10,6 +10,7 @@
 
 mod error;
 pub mod manifest;
+pub mod model;
 pub mod run;
 pub mod subject;
 

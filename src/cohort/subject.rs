@@ -188,6 +188,8 @@ pub struct SubjectReport {
     pub timescale_vs_hierarchy_spearman: Option<f64>,
     /// The link summaries.
     pub summary: SubjectSummary,
+    /// Minimum-energy matrix, `energy[i][j]` from state i to state j.
+    pub energy: Vec<Vec<f64>>,
     /// Numerical quality of the energies.
     pub gramian_condition: f64,
     /// Largest terminal-state error over pairs.
@@ -579,6 +581,7 @@ pub fn run_subject(
         state_timescale_s: state_tau.clone(),
         timescale_vs_hierarchy_spearman: tau_vs_map.map(|c| c.r),
         summary: summary.clone(),
+        energy: energy.rows().into_iter().map(|r| r.to_vec()).collect(),
         gramian_condition: einfo.gramian_condition,
         terminal_error_max: einfo.terminal_error_max,
         tests,

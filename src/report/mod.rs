@@ -4,5 +4,6 @@
 //! output needs no network and no JavaScript, so it opens from a file on any
 //! machine and can be archived with the results.
 
+pub mod cohort;
 pub mod html;
 pub mod svg;
