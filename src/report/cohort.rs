@@ -60,7 +60,7 @@ pub fn cohort_report(
         .iter()
         .map(|x| x.covariates.get("age").and_then(|a| a.parse().ok()).unwrap_or(f64::NAN))
         .collect();
-    let plots: [(&str, &str, fn(&SubjectReport) -> f64); 4] = [
+    let plots: [(&str, &str, crate::cohort::model::Outcome); 4] = [
         ("Bottom-up minus top-down energy", "mean energy difference", |x| x.summary.bottom_up_minus_top_down),
         ("Asymmetry slope against hierarchical distance", "slope per bin", |x| {
             x.summary.asymmetry_vs_distance_line.slope
