@@ -8,5 +8,6 @@ mod hierarchy;
 mod io_arrays;
 mod io_h5;
 mod stats;
+mod subject;
 mod timescale;
 mod util;

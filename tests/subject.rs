@@ -1,0 +1,177 @@
+//! The whole per-subject job and the demo, end to end through the binary.
+
+use crate::util::{files_below, hierax, repo_root, run};
+use hierax::io::hdf5::{read_tree, DataValue};
+use std::path::Path;
+
+fn matrix(v: &DataValue) -> ndarray::Array2<f64> {
+    match v {
+        DataValue::F64 { shape, data } => {
+            ndarray::Array2::from_shape_vec((shape[0], shape[1]), data.clone()).unwrap()
+        }
+        other => panic!("expected a float matrix, found {other:?}"),
+    }
+}
+
+/// Run the demo once (few nulls) into `out`.
+fn demo_into(out: &Path) {
+    let o = run(hierax().args(["demo", "--nulls", "3", "--quiet", "--out"]).arg(out));
+    assert!(o.status.success());
+    let text = String::from_utf8(o.stdout).unwrap();
+    assert!(text.contains("24 succeeded, 0 failed"), "{text}");
+    assert!(text.contains("not for clinical decisions"), "{text}");
+}
+
+#[test]
+fn demo_writes_every_output_and_recovers_the_planted_effects() {
+    let dir = tempfile::tempdir().unwrap();
+    let out = dir.path().join("demo");
+    demo_into(&out);
+    for f in ["cohort.csv", "run_log.csv", "age_models.csv", "cohort.json", "report.html"] {
+        assert!(out.join(f).is_file(), "{f} missing");
+    }
+    assert!(!files_below(&out).iter().any(|p| p.to_string_lossy().contains("partial")));
+    let html = std::fs::read_to_string(out.join("report.html")).unwrap();
+    assert!(
+        html.contains("not for clinical decisions") && html.contains("INVENTED") && html.contains("<svg")
+    );
+
+    // Planted in the invented cohort (demo-data/README.md): bottom-up transitions are cheaper,
+    // increasingly with distance, and the asymmetry shrinks with age.
+    let cohort: serde_json::Value =
+        serde_json::from_str(&std::fs::read_to_string(out.join("cohort.json")).unwrap()).unwrap();
+    let outcomes = cohort["run"]["outcomes"].as_array().unwrap();
+    assert_eq!(outcomes.len(), 24);
+    for o in outcomes {
+        let s = &o["result"]["Ok"]["summary"];
+        assert!(s["bottom_up_minus_top_down"].as_f64().unwrap() < 0.0, "{}", o["subject"]);
+        assert!(s["asymmetry_vs_distance_line"]["slope"].as_f64().unwrap() < 0.0, "{}", o["subject"]);
+    }
+    let age_models = std::fs::read_to_string(out.join("age_models.csv")).unwrap();
+    let row = age_models.lines().find(|l| l.starts_with("bottom_up_minus_top_down,age,")).unwrap();
+    let cells: Vec<&str> = row.split(',').collect();
+    let (estimate, p) = (cells[2].parse::<f64>().unwrap(), cells[5].parse::<f64>().unwrap());
+    assert!(estimate > 0.0 && p < 0.01, "age effect {estimate} p {p}");
+}
+
+#[test]
+fn subject_hdf5_holds_every_group_and_the_asymmetry_closed_form() {
+    let dir = tempfile::tempdir().unwrap();
+    let root = repo_root();
+    let d = |p: &str| root.join("demo-data").join(p);
+    let o = run(hierax()
+        .args(["subject", "--subject", "sub-03", "--tr", "2", "--bins", "5", "--out"])
+        .arg(dir.path())
+        .arg("--connectome")
+        .arg(d("sub-03/sub-03_connectome.csv"))
+        .arg("--series")
+        .arg(d("sub-03/sub-03_bold.npy"))
+        .arg("--map")
+        .arg(d("atlas/hierarchy.csv"))
+        .arg("--confounds")
+        .arg(d("sub-03/sub-03_confounds.tsv")));
+    assert!(o.status.success());
+    let text = String::from_utf8(o.stdout).unwrap();
+    assert!(text.contains("bottom-up mean") && text.contains("Gramian condition"), "{text}");
+
+    let tree = read_tree(&dir.path().join("sub-03/sub-03_hierax.h5")).unwrap();
+    for g in ["timescales", "hierarchy", "control", "link"] {
+        assert!(tree.group(g).is_some(), "group {g} missing");
+    }
+    assert!(tree.attr("hierax_version").is_some() && tree.attr("input_sha256").is_some());
+    let energy = matrix(tree.group("control").unwrap().dataset("energy").unwrap().value());
+    let states = matrix(tree.group("hierarchy").unwrap().dataset("states").unwrap().value());
+
+    // Closed form for symmetric Ã = A/(1 + λmax) − I with B = I (T-independent):
+    // M − ΦMΦ = −2Ã, so E_ij − E_ji = 2 (x_iᵀÃ x_i − x_jᵀÃ x_j) ... with equal-norm states the
+    // −I part cancels, giving 2 (x_iᵀA x_i − x_jᵀA x_j) / (1 + λmax). Derived from W_T =
+    // ∫ e^{2Ãt} dt = (e^{2ÃT} − I)(2Ã)⁻¹ (the scalar case is Kirk 1970's closed form).
+    let la =
+        hierax::io::read_array(&hierax::io::InputSpec::new(d("sub-03/sub-03_connectome.csv"), None)).unwrap();
+    let a = la.matrix().unwrap();
+    let fa = faer::Mat::from_fn(a.nrows(), a.ncols(), |i, j| a[[i, j]]);
+    let lmax = fa.self_adjoint_eigenvalues(faer::Side::Lower).unwrap().into_iter().fold(f64::MIN, f64::max);
+    let k = states.ncols();
+    let quad: Vec<f64> = (0..k).map(|i| states.column(i).dot(&a.dot(&states.column(i)))).collect();
+    let norms: Vec<f64> = (0..k).map(|i| states.column(i).dot(&states.column(i))).collect();
+    assert!(norms.iter().all(|n| *n == norms[0]), "equal-size states expected for 100 regions / 5 bins");
+    let scale = energy.iter().fold(0.0f64, |m, v| m.max(v.abs()));
+    for i in 0..k {
+        for j in 0..k {
+            let want = 2.0 * (quad[i] - quad[j]) / (1.0 + lmax);
+            let got = energy[[i, j]] - energy[[j, i]];
+            // Relative to the largest energy: the energies themselves are accurate to ~1e-12
+            // (tests/control.rs against scipy), so 1e-9 leaves room for the subtraction.
+            assert!((got - want).abs() <= 1e-9 * scale, "pair {i}->{j}: {got} vs closed form {want}");
+        }
+    }
+}
+
+fn subject_case(extra: &[&str], expect: &[&str]) {
+    let dir = tempfile::tempdir().unwrap();
+    let root = repo_root();
+    let d = |p: &str| root.join("demo-data").join(p).to_string_lossy().into_owned();
+    let mut cmd = hierax();
+    cmd.args(["subject", "--tr", "2", "--out"]).arg(dir.path().join("out"));
+    let mut have = |flag: &str, default: String| {
+        if !extra.contains(&flag) {
+            cmd.arg(flag).arg(default);
+        }
+    };
+    have("--connectome", d("sub-01/sub-01_connectome.csv"));
+    have("--series", d("sub-01/sub-01_bold.npy"));
+    have("--map", d("atlas/hierarchy.csv"));
+    cmd.args(extra.iter().map(|s| s.replace("DEMO/", &format!("{}/", root.join("demo-data").display()))));
+    let o = run(&mut cmd);
+    assert_eq!(o.status.code(), Some(2));
+    let err = String::from_utf8(o.stderr).unwrap();
+    assert_eq!(err.lines().count(), 1, "{err}");
+    for e in expect {
+        assert!(err.contains(e), "{err:?} lacks {e:?}");
+    }
+    assert!(files_below(dir.path()).is_empty(), "output left behind");
+}
+
+#[test]
+fn subject_rejects_mismatched_region_names() {
+    let dir = tempfile::tempdir().unwrap();
+    let map = dir.path().join("map.csv");
+    let mut body = String::from("region,value\n");
+    for i in 0..100 {
+        body.push_str(&format!("X{i},{}\n", i as f64 / 100.0));
+    }
+    std::fs::write(&map, body).unwrap();
+    subject_case(&["--map", map.to_str().unwrap()], &["region names", "region 1 is `X0`", "L_P01"]);
+}
+
+#[test]
+fn subject_rejects_a_map_of_the_wrong_length() {
+    let dir = tempfile::tempdir().unwrap();
+    let map = dir.path().join("map.csv");
+    std::fs::write(&map, "1\n2\n3\n").unwrap();
+    subject_case(
+        &["--map", map.to_str().unwrap()],
+        &["map: expected one value for each of 100 regions, found 3"],
+    );
+}
+
+#[test]
+fn subject_rejects_a_missing_confound_column() {
+    subject_case(
+        &["--confounds", "DEMO/sub-01/sub-01_confounds.tsv", "--confound-columns", "csf"],
+        &["no column `csf`", "global_signal"],
+    );
+}
+
+#[test]
+fn subject_geometry_nulls_need_distances() {
+    subject_case(
+        &["--network-nulls", "2", "--null-model", "geometry"],
+        &["geometry-preserving nulls need a distance matrix"],
+    );
+}
+
+#[test]
+fn subject_unknown_timescale_column_lists_the_choices() {
+    subject_case(&["--timescale", "tau"], &["no timescale column `tau`", "ips_tau_s"]);
+}
