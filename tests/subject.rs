@@ -82,10 +82,11 @@ fn subject_hdf5_holds_every_group_and_the_asymmetry_closed_form() {
     let energy = matrix(tree.group("control").unwrap().dataset("energy").unwrap().value());
     let states = matrix(tree.group("hierarchy").unwrap().dataset("states").unwrap().value());
 
-    // Closed form for symmetric Ã = A/(1 + λmax) − I with B = I (T-independent):
-    // M − ΦMΦ = −2Ã, so E_ij − E_ji = 2 (x_iᵀÃ x_i − x_jᵀÃ x_j) ... with equal-norm states the
-    // −I part cancels, giving 2 (x_iᵀA x_i − x_jᵀA x_j) / (1 + λmax). Derived from W_T =
-    // ∫ e^{2Ãt} dt = (e^{2ÃT} − I)(2Ã)⁻¹ (the scalar case is Kirk 1970's closed form).
+    // Closed form for symmetric Ã = A/(1 + λmax) − I with B = I, any horizon T: with
+    // W_T = (Φ² − I)(2Ã)⁻¹ and M = W_T⁻¹ one gets M − ΦMΦ = −2Ã, hence
+    // E_ij − E_ji = 2 (x_iᵀÃx_i − x_jᵀÃx_j), and for states of equal norm the −I part cancels:
+    // E_ij − E_ji = 2 (x_iᵀA x_i − x_jᵀA x_j) / (1 + λmax). Derived here from the Gramian integral
+    // (its scalar case is the textbook closed form of Kirk 1970); independent of hierax's code path.
     let la =
         hierax::io::read_array(&hierax::io::InputSpec::new(d("sub-03/sub-03_connectome.csv"), None)).unwrap();
     let a = la.matrix().unwrap();
