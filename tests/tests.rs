@@ -7,6 +7,7 @@ mod demo_data;
 mod hierarchy;
 mod io_arrays;
 mod io_h5;
+mod link;
 mod stats;
 mod subject;
 mod timescale;

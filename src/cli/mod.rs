@@ -5,6 +5,7 @@ mod demo;
 mod energy;
 mod gradient;
 mod inspect;
+mod link;
 mod states;
 mod subject;
 mod surrogates;
@@ -33,6 +34,7 @@ enum Command {
     Energy(energy::EnergyArgs),
     Timescales(Box<timescales::TimescalesArgs>),
     Subject(Box<subject::SubjectArgs>),
+    Link(link::LinkArgs),
 }
 
 /// Parse the command line and run the chosen command.
@@ -47,6 +49,7 @@ pub fn run() -> anyhow::Result<ExitCode> {
         Command::Energy(args) => energy::run(args),
         Command::Timescales(args) => timescales::run(*args),
         Command::Subject(args) => subject::run(*args),
+        Command::Link(args) => link::run(args),
     }
 }
 
