@@ -7,6 +7,19 @@ use rand::seq::SliceRandom;
 use rand::{Rng, SeedableRng};
 use rand_chacha::ChaCha8Rng;
 
+/// Two-sided permutation p-value of Spearman(map, tau) from 199 shuffles of the map.
+fn spearman_permutation_p(map: &[f64], tau: &[f64], rng: &mut ChaCha8Rng) -> f64 {
+    let obs = spearman(map, tau).unwrap().r;
+    let mut perm = map.to_vec();
+    let null: Vec<f64> = (0..199)
+        .map(|_| {
+            perm.shuffle(rng);
+            spearman(&perm, tau).unwrap().r
+        })
+        .collect();
+    permutation_p_value(obs, &null, Alternative::TwoSided).unwrap()
+}
+
 #[test]
 fn permutation_p_values_are_uniform_under_a_planted_null() {
     // Maps unrelated by construction: timescales and hierarchy drawn independently.
@@ -18,30 +31,14 @@ fn permutation_p_values_are_uniform_under_a_planted_null() {
         for _ in 0..400 {
             let map: Vec<f64> = (0..40).map(|_| rng.random::<f64>()).collect();
             let tau: Vec<f64> = (0..40).map(|_| rng.random::<f64>()).collect();
-            let obs = spearman(&map, &tau).unwrap().r;
-            let mut perm = map.clone();
-            let null: Vec<f64> = (0..199)
-                .map(|_| {
-                    perm.shuffle(&mut rng);
-                    spearman(&perm, &tau).unwrap().r
-                })
-                .collect();
-            ps.push(permutation_p_value(obs, &null, Alternative::TwoSided).unwrap());
+            ps.push(spearman_permutation_p(&map, &tau, &mut rng));
         }
         let (d, p) = ks_uniform(&ps).unwrap();
         assert!(p > 0.01, "seed {seed}: KS D = {d}, p = {p}");
         // And a planted effect is detected: the same machinery on related maps gives small p.
         let map: Vec<f64> = (0..40).map(|_| rng.random::<f64>()).collect();
         let tau: Vec<f64> = map.iter().map(|m| m + 0.3 * rng.random::<f64>()).collect();
-        let obs = spearman(&map, &tau).unwrap().r;
-        let mut perm = map.clone();
-        let null: Vec<f64> = (0..199)
-            .map(|_| {
-                perm.shuffle(&mut rng);
-                spearman(&perm, &tau).unwrap().r
-            })
-            .collect();
-        assert_eq!(permutation_p_value(obs, &null, Alternative::TwoSided).unwrap(), 1.0 / 200.0);
+        assert_eq!(spearman_permutation_p(&map, &tau, &mut rng), 1.0 / 200.0);
     }
 }
 

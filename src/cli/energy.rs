@@ -1,10 +1,11 @@
 //! `hierax energy`: minimum control energy between brain states.
 
+use super::subject::TimeModelArg;
 use anyhow::{anyhow, bail, Context};
-use clap::{Args, ValueEnum};
+use clap::Args;
 use hierax::control::penalised::{penalised_energy_matrix, PenaltyParams};
 use hierax::control::states::states_from_matrix;
-use hierax::control::{self, tables, Drivers, Par, System, SystemParams, TimeModel};
+use hierax::control::{self, tables, Drivers, Par, System, SystemParams};
 use hierax::hierarchy::{build_states, StatesParams};
 use hierax::io::provenance::{InputRecord, Provenance};
 use hierax::io::table::{write_json, Column, Table};
@@ -12,12 +13,6 @@ use hierax::io::validate::{self, ConnectomeRules};
 use hierax::io::{read_array, InputSpec};
 use std::path::PathBuf;
 use std::process::ExitCode;
-
-#[derive(Clone, Copy, Debug, ValueEnum)]
-enum TimeModelArg {
-    Continuous,
-    Discrete,
-}
 
 /// Minimum control energy of every transition between brain states on a
 /// linear network model of the connectome, with node controllability metrics.
@@ -174,10 +169,7 @@ pub fn run(args: EnergyArgs) -> anyhow::Result<ExitCode> {
     };
 
     let mut params = SystemParams::new();
-    params.time_model = match args.time_model {
-        TimeModelArg::Continuous => TimeModel::Continuous,
-        TimeModelArg::Discrete => TimeModel::Discrete,
-    };
+    params.time_model = args.time_model.into();
     params.horizon = args.horizon;
     params.stability_offset = args.stability_offset;
     params.drivers = drivers;

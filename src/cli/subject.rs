@@ -29,6 +29,15 @@ pub enum TimeModelArg {
     Discrete,
 }
 
+impl From<TimeModelArg> for TimeModel {
+    fn from(t: TimeModelArg) -> Self {
+        match t {
+            TimeModelArg::Continuous => TimeModel::Continuous,
+            TimeModelArg::Discrete => TimeModel::Discrete,
+        }
+    }
+}
+
 /// Options of the per-subject job shared by `subject` and `demo`.
 #[derive(Debug, Clone, Args)]
 pub struct JobOptions {
@@ -107,10 +116,7 @@ impl JobOptions {
         c.confound_columns = self.confound_columns.clone();
         c.detrend_order = self.detrend;
         let mut sys = SystemParams::new();
-        sys.time_model = match self.time_model {
-            TimeModelArg::Continuous => TimeModel::Continuous,
-            TimeModelArg::Discrete => TimeModel::Discrete,
-        };
+        sys.time_model = self.time_model.into();
         sys.horizon = self.horizon;
         sys.stability_offset = self.stability_offset;
         c.system = sys;

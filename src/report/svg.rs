@@ -60,6 +60,23 @@ fn range(v: impl Iterator<Item = f64>) -> (f64, f64) {
     (lo - pad, hi + pad)
 }
 
+/// The opening of a figure: the `<svg>` element, its title and a heading.
+fn open_svg(title: &str) -> String {
+    let mut s = String::new();
+    let _ = write!(
+        s,
+        r#"<svg xmlns="http://www.w3.org/2000/svg" viewBox="0 0 {W} {H}" width="{W}" height="{H}" role="img" font-family="sans-serif" font-size="11">"#
+    );
+    let _ = write!(s, r#"<title>{}</title>"#, escape(title));
+    let _ = write!(
+        s,
+        r##"<text x="{}" y="18" text-anchor="middle" font-size="13" fill="#1f2933">{}</text>"##,
+        W / 2.0,
+        escape(title)
+    );
+    s
+}
+
 /// A scatter plot of (x, y) with axis labels and, optionally, the line
 /// y = intercept + slope·x. Non-finite points are left out and counted in
 /// the caption.
@@ -75,18 +92,7 @@ pub fn scatter(
     let (y0, y1) = range(y.iter().copied());
     let px = |v: f64| MARGIN_L + (v - x0) / (x1 - x0) * (W - MARGIN_L - MARGIN_R);
     let py = |v: f64| H - MARGIN_B - (v - y0) / (y1 - y0) * (H - MARGIN_T - MARGIN_B);
-    let mut s = String::new();
-    let _ = write!(
-        s,
-        r#"<svg xmlns="http://www.w3.org/2000/svg" viewBox="0 0 {W} {H}" width="{W}" height="{H}" role="img" font-family="sans-serif" font-size="11">"#
-    );
-    let _ = write!(s, r#"<title>{}</title>"#, escape(title));
-    let _ = write!(
-        s,
-        r##"<text x="{}" y="18" text-anchor="middle" font-size="13" fill="#1f2933">{}</text>"##,
-        W / 2.0,
-        escape(title)
-    );
+    let mut s = open_svg(title);
     axes(&mut s, x0, x1, y0, y1, &px, &py, x_label, y_label);
     let mut dropped = 0;
     for (&a, &b) in x.iter().zip(y) {
@@ -212,18 +218,7 @@ pub fn heatmap(title: &str, row_label: &str, col_label: &str, m: &ndarray::Array
     let side = (H - MARGIN_T - MARGIN_B).min(W - MARGIN_L - MARGIN_R - 70.0);
     let cw = side / c.max(1) as f64;
     let ch = side / r.max(1) as f64;
-    let mut s = String::new();
-    let _ = write!(
-        s,
-        r#"<svg xmlns="http://www.w3.org/2000/svg" viewBox="0 0 {W} {H}" width="{W}" height="{H}" role="img" font-family="sans-serif" font-size="11">"#
-    );
-    let _ = write!(s, r#"<title>{}</title>"#, escape(title));
-    let _ = write!(
-        s,
-        r##"<text x="{}" y="18" text-anchor="middle" font-size="13" fill="#1f2933">{}</text>"##,
-        W / 2.0,
-        escape(title)
-    );
+    let mut s = open_svg(title);
     for i in 0..r {
         for j in 0..c {
             let _ = write!(
