@@ -113,6 +113,8 @@ pub struct SubjectConfig {
     pub length_bins: usize,
     /// Number of spun hierarchy maps (0 = none; needs sphere coordinates).
     pub map_nulls: usize,
+    /// False discovery rate at which the family of null tests is read.
+    pub fdr_alpha: f64,
     /// Seed of every random draw of the job.
     pub seed: u64,
 }
@@ -127,7 +129,7 @@ impl SubjectConfig {
     /// fully valid segments survive censoring of a few hundred frames, which
     /// the default of the timescale module, min(256, n), would not), the default control
     /// system (continuous, T = 1, c = 1, B = I), no nulls, 10 swaps per edge,
-    /// 10 length bins, seed 0.
+    /// 10 length bins, FDR α = 0.05, seed 0.
     pub fn new(tr_s: f64) -> Self {
         SubjectConfig {
             tr_s,
@@ -147,6 +149,7 @@ impl SubjectConfig {
             swaps_per_edge: 10,
             length_bins: 10,
             map_nulls: 0,
+            fdr_alpha: 0.05,
             seed: 0,
         }
     }
@@ -431,7 +434,24 @@ pub fn run_subject(
     let (tx, mx): (Vec<f64>, Vec<f64>) = finite.into_iter().unzip();
     let tau_vs_map = crate::stats::correlation::spearman(&mx, &tx).ok();
 
-    // 6. Nulls.
+    // 6. Nulls. Refuse a null count that could never reach significance after FDR: the smallest
+    // permutation p-value is 1/(m + 1), and Benjamini–Hochberg multiplies the smallest p by the
+    // family size F, so m + 1 must be at least F/α.
+    let family = 2 * usize::from(cfg.network_nulls > 0) + 3 * usize::from(cfg.map_nulls > 0);
+    for (what, m) in [("network nulls", cfg.network_nulls), ("map nulls", cfg.map_nulls)] {
+        if m > 0 && (family as f64) / ((m + 1) as f64) > cfg.fdr_alpha {
+            let needed = ((family as f64) / cfg.fdr_alpha).ceil() as usize - 1;
+            return Err(invalid(
+                "nulls",
+                format!(
+                    "{m} {what} are too few for a family of {family} tests at FDR {}: the smallest possible \
+                     adjusted p-value is {:.3}; use at least {needed}",
+                    cfg.fdr_alpha,
+                    (family as f64) / ((m + 1) as f64)
+                ),
+            ));
+        }
+    }
     let dist = match &inputs.distances {
         Some(spec) => {
             records.push(InputRecord::of("distances", spec)?);
@@ -519,7 +539,9 @@ pub fn run_subject(
                 let spun: Vec<f64> = spins.surrogates.column(m).to_vec();
                 let st = build_states(&spun, &sparams).ok()?;
                 let st_tau = link::bin_means(&tau, &st.bins).ok()?;
-                let s = summarise_network(&conn.weights, cfg.directed, &vsys, &st.matrix, Some(&st_tau))?;
+                // Same network, new states: reuse its one decomposition.
+                let (e, _) = energy_matrix(&sys, st.matrix.view()).ok()?;
+                let s = link::summarise(&link::pair_table(&e, Some(&st_tau)).ok()?).ok()?;
                 let fin: Vec<(f64, f64)> = tau
                     .iter()
                     .zip(&spun)
