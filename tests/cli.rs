@@ -40,3 +40,23 @@ fn inspect_lists_the_datasets_of_an_h5_file_without_a_key() {
     let text = String::from_utf8(out.stdout).unwrap();
     assert!(text.contains("entries; name one as") && text.contains("float64"), "{text}");
 }
+
+#[test]
+fn inspect_reads_every_fixture_and_demo_file() {
+    // Every committed fixture and demo input must be understood by `inspect`
+    // (containers are listed, tables with text columns described).
+    let root = crate::util::repo_root();
+    let mut paths = Vec::new();
+    for dir in ["tests/data/arrays", "tests/data/h5", "demo-data/atlas", "demo-data/sub-01"] {
+        for e in std::fs::read_dir(root.join(dir)).unwrap().flatten() {
+            let p = e.path();
+            let ext = p.extension().and_then(|x| x.to_str()).unwrap_or("");
+            if ["npy", "npz", "mat", "h5", "csv", "tsv"].contains(&ext) {
+                paths.push(p);
+            }
+        }
+    }
+    assert!(paths.len() >= 40, "found only {} files", paths.len());
+    let out = run(hierax().arg("inspect").args(&paths));
+    assert!(out.status.success(), "inspect failed on a fixture");
+}

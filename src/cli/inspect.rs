@@ -3,7 +3,7 @@
 use anyhow::Context;
 use clap::Args;
 use hierax::io::validate::{self, ConnectomeRules, Orientation};
-use hierax::io::{hdf5, mat, read_array, Format, InputSpec, LoadedArray};
+use hierax::io::{delimited, hdf5, mat, npy, read_array, Format, InputSpec, LoadedArray};
 use std::process::ExitCode;
 
 /// Read each input and print what hierax understood: shape, stored type,
@@ -155,7 +155,8 @@ fn preview(names: &[String]) -> String {
     }
 }
 
-/// For an HDF5 or MAT file named without a key, the entries it holds, one
+/// For an HDF5, MAT or NPZ file named without a key, the entries it holds (and
+/// for a table mixing text and numbers, its columns), one
 /// line each; `None` for other inputs.
 fn contents(spec: &InputSpec) -> Result<Option<Vec<String>>, hierax::io::IoError> {
     if spec.key.is_some() {
@@ -167,6 +168,16 @@ fn contents(spec: &InputSpec) -> Result<Option<Vec<String>>, hierax::io::IoError
             Ok(Some(hdf5::list_datasets(&spec.path)?.iter().map(|d| d.to_string()).collect()))
         }
         Format::Mat => Ok(Some(mat::list_variables(&spec.path)?.iter().map(|v| v.to_string()).collect())),
+        Format::Npz => Ok(Some(npy::list_npz(&spec.path)?)),
+        Format::Delimited(sep) => {
+            // A table mixing text and numeric columns is described column by column.
+            let cols = delimited::describe_columns(spec, sep)?;
+            if cols.iter().any(|c| c.ends_with("(text)")) {
+                Ok(Some(cols))
+            } else {
+                Ok(None)
+            }
+        }
         _ => Ok(None),
     }
 }
@@ -183,11 +194,13 @@ pub fn run(args: InspectArgs) -> anyhow::Result<ExitCode> {
                         println!("{}", serde_json::to_string(&v).context("cannot encode JSON")?);
                     } else {
                         println!("{spec}");
-                        println!(
-                            "  holds       {} entries; name one as {}:KEY",
-                            entries.len(),
-                            spec.path.display()
-                        );
+                        let how = if matches!(spec.format(), Ok(Format::Delimited(_))) {
+                            "columns, some of them text; select numeric ones as"
+                        } else {
+                            "entries; name one as"
+                        };
+                        let key = if how.starts_with("columns") { "COL1,COL2" } else { "KEY" };
+                        println!("  holds       {} {how} {}:{key}", entries.len(), spec.path.display());
                         for e in &entries {
                             println!("    {e}");
                         }

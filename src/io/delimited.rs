@@ -218,6 +218,28 @@ pub fn read(spec: &InputSpec, sep: Separator) -> Result<LoadedArray, IoError> {
     Ok(out)
 }
 
+/// Describe each data column of a delimited table as `name (numeric)` or
+/// `name (text)`, for tables that mix both (e.g. a regions table with a
+/// hemisphere column): select numeric ones with `PATH:col1,col2`.
+///
+/// # Errors
+/// The errors of [`read`] for a malformed file.
+pub fn describe_columns(spec: &InputSpec, sep: Separator) -> Result<Vec<String>, IoError> {
+    let t = parse_table(spec, sep)?;
+    let names: Vec<String> = t
+        .col_names
+        .clone()
+        .unwrap_or_else(|| (1..=t.ncol).map(|j| format!("column {}", j + t.first)).collect());
+    Ok(names
+        .iter()
+        .enumerate()
+        .map(|(j, n)| {
+            let text = t.rows.iter().any(|(_, r)| matches!(classify(&r[j]), Cell::Text));
+            format!("{n} ({})", if text { "text" } else { "numeric" })
+        })
+        .collect())
+}
+
 /// Read one column of a delimited table as text labels (e.g. a hemisphere
 /// column of `L`/`R`). The KEY must name exactly one column.
 ///

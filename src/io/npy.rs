@@ -156,6 +156,31 @@ pub fn read_npz_file(spec: &InputSpec) -> Result<LoadedArray, IoError> {
     Ok(la)
 }
 
+/// The arrays of a `.npz` archive as `name (shape dtype)`, for listing.
+///
+/// # Errors
+/// As [`read_npz_file`].
+pub fn list_npz(path: &std::path::Path) -> Result<Vec<String>, IoError> {
+    let bytes = read_bytes(path)?;
+    let not_npz = |e: ReadNpzError| IoError::format(path, format!("not a readable .npz archive: {e}"));
+    let mut zip = NpzReader::new(Cursor::new(bytes)).map_err(not_npz)?;
+    let names: Vec<String> = zip.names().map_err(not_npz)?;
+    let mut out = Vec::new();
+    for raw in names {
+        let name = raw.strip_suffix(".npy").unwrap_or(&raw).to_string();
+        let mut member = NpzMember { zip: &mut zip, name: raw.clone(), archive_error: None };
+        let described = match decode(&mut member) {
+            Ok((a, stored)) => {
+                let dims: Vec<String> = a.shape().iter().map(|d| d.to_string()).collect();
+                format!("{name} ({} {stored})", dims.join("x"))
+            }
+            Err(e) => format!("{name} (unreadable: {})", describe(&e)),
+        };
+        out.push(described);
+    }
+    Ok(out)
+}
+
 /// Write `data` as a float64 `.npy` file at `path`, atomically.
 ///
 /// # Errors
