@@ -112,7 +112,7 @@ fn participants_connectomes_series_and_confounds_validate() {
         assert!(c.weights.iter().all(|&v| v >= 0.0 && v.fract() == 0.0));
         assert_eq!(c.names.as_deref(), Some(&names[..]));
 
-        let s = validate::series(&load(&format!("{}/{}_bold.npy", p.id, p.id)), Orientation::Auto, Some(100))
+        let s = validate::series(load(&format!("{}/{}_bold.npy", p.id, p.id)), Orientation::Auto, Some(100))
             .unwrap();
         assert_eq!(s.data.dim(), (N_FRAMES, N_REGIONS));
         assert!(s.data.iter().all(|v| v.is_finite()));

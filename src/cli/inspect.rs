@@ -82,7 +82,7 @@ fn check_role(la: &LoadedArray, role: Role, args: &InspectArgs) -> Result<Vec<St
             let rules = ConnectomeRules { directed: args.directed, ..Default::default() };
             validate::connectome(la, &rules).map(|c| c.notes)
         }
-        Role::Series => validate::series(la, args.orientation.into(), args.count).map(|s| {
+        Role::Series => validate::series(la.clone(), args.orientation.into(), args.count).map(|s| {
             let mut notes =
                 vec![format!("{} frames x {} regions, {}", s.data.nrows(), s.data.ncols(), s.orientation)];
             notes.extend(s.notes);

@@ -178,8 +178,7 @@ pub fn run(args: TimescalesArgs) -> anyhow::Result<ExitCode> {
         Some(OrientationArg::TimeByRegion) => Orientation::TimeByRegion,
         Some(OrientationArg::RegionByTime) => Orientation::RegionByTime,
     };
-    let series = validate::series(&la, orientation, args.regions)?;
-    drop(la);
+    let series = validate::series(la, orientation, args.regions)?;
     let (n_frames, n_regions) = series.data.dim();
     let names: Vec<String> =
         series.names.clone().unwrap_or_else(|| (1..=n_regions).map(|i| format!("region_{i}")).collect());

@@ -315,7 +315,7 @@ pub fn run_subject(
     notes.extend(conn.notes.iter().map(|s| format!("connectome: {s}")));
     records.push(InputRecord::of("connectome", &inputs.connectome)?);
 
-    let series = validate::series(&read_array(&inputs.series)?, cfg.orientation, Some(n))?;
+    let series = validate::series(read_array(&inputs.series)?, cfg.orientation, Some(n))?;
     records.push(InputRecord::of("series", &inputs.series)?);
     let map = validate::region_map(&read_array(&inputs.map)?, Some(n))?;
     records.push(InputRecord::of("map", &inputs.map)?);

@@ -253,6 +253,29 @@ impl LoadedArray {
         }
     }
 
+    /// The array as a matrix, consuming it without copying the values (a
+    /// 1-D array becomes one column).
+    ///
+    /// # Errors
+    /// [`IoError::Invalid`] when the array has more than two dimensions.
+    pub fn into_matrix(self) -> Result<Array2<f64>, IoError> {
+        let spec = self.spec;
+        let shape = self.data.shape().to_vec();
+        match shape.len() {
+            1 => Ok(self
+                .data
+                .into_dimensionality::<Ix1>()
+                .expect("ndim checked")
+                .insert_axis(ndarray::Axis(1))),
+            2 => Ok(self.data.into_dimensionality::<Ix2>().expect("ndim checked")),
+            d => Err(IoError::invalid(
+                &spec,
+                "shape",
+                format!("expected a 1-D or 2-D array, found {d}-D {shape:?}"),
+            )),
+        }
+    }
+
     /// The array as a vector: a 1-D array, or a matrix with one row or one column.
     ///
     /// # Errors

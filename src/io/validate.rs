@@ -196,7 +196,8 @@ pub struct Series {
     pub notes: Vec<String>,
 }
 
-/// Check a time series and put it in time × region order.
+/// Check a time series and put it in time × region order. The loaded array
+/// is consumed, so its values are not held twice.
 ///
 /// With [`Orientation::Auto`] the layout is settled by `n_regions` when it is
 /// known and only one axis matches it, or by a header of region names (which
@@ -210,20 +211,20 @@ pub struct Series {
 /// [`IoError::Invalid`] when the array is not 2-D, no axis matches
 /// `n_regions`, or the orientation cannot be settled.
 pub fn series(
-    la: &LoadedArray,
+    la: LoadedArray,
     orientation: Orientation,
     n_regions: Option<usize>,
 ) -> Result<Series, IoError> {
     let field = "time series";
-    let bad = |msg: String| IoError::invalid(&la.spec, field, msg);
+    let spec = la.spec.clone();
+    let bad = |msg: String| IoError::invalid(&spec, field, msg);
     if la.data.ndim() != 2 {
         return Err(bad(format!(
             "expected a 2-D matrix (time points x regions), found shape {:?}",
             la.data.shape()
         )));
     }
-    let m = la.matrix()?;
-    let (rows, cols) = m.dim();
+    let (rows, cols) = (la.data.shape()[0], la.data.shape()[1]);
     let transpose = match orientation {
         Orientation::TimeByRegion => false,
         Orientation::RegionByTime => true,
@@ -256,14 +257,16 @@ pub fn series(
         (_, false) => "time x region (as declared)",
         (_, true) => "region x time in the file, transposed (as declared)",
     };
-    let data = if transpose { m.t().to_owned() } else { m };
     let names = if transpose { la.row_names.clone() } else { la.col_names.clone() };
+    let mut notes = la.notes.clone();
+    // Consume the loaded array so its values are held once (a transpose needs one copy).
+    let m = la.into_matrix()?;
+    let data = if transpose { m.t().as_standard_layout().into_owned() } else { m };
     if let (Some(n), Some(names)) = (n_regions, &names) {
         if names.len() != n {
             return Err(bad(format!("{} region names for {n} regions", names.len())));
         }
     }
-    let mut notes = la.notes.clone();
     let nonfinite = data.iter().filter(|v| !v.is_finite()).count();
     if nonfinite > 0 {
         notes.push(format!("{nonfinite} non-finite value(s); affected regions or frames are handled by QC"));
@@ -421,11 +424,11 @@ mod tests {
     #[test]
     fn series_orientation_is_settled_or_refused() {
         let m = Array2::<f64>::zeros((10, 3));
-        assert_eq!(series(&la(m.clone()), Orientation::Auto, Some(3)).unwrap().data.dim(), (10, 3));
-        assert_eq!(series(&la(m.t().to_owned()), Orientation::Auto, Some(3)).unwrap().data.dim(), (10, 3));
-        let e = series(&la(m.clone()), Orientation::Auto, None).unwrap_err().to_string();
+        assert_eq!(series(la(m.clone()), Orientation::Auto, Some(3)).unwrap().data.dim(), (10, 3));
+        assert_eq!(series(la(m.t().to_owned()), Orientation::Auto, Some(3)).unwrap().data.dim(), (10, 3));
+        let e = series(la(m.clone()), Orientation::Auto, None).unwrap_err().to_string();
         assert!(e.contains("--orientation"), "{e}");
-        let e = series(&la(m), Orientation::Auto, Some(4)).unwrap_err().to_string();
+        let e = series(la(m), Orientation::Auto, Some(4)).unwrap_err().to_string();
         assert!(e.contains("neither axis has the 4 regions"), "{e}");
     }
 
