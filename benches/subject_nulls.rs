@@ -14,7 +14,8 @@
 //! the largest relative difference is printed as a check that they do the
 //! same job.
 //!
-//! The machine is shared; figures are single runs and indicative only.
+//! The machine is shared; the whole job is timed twice (best reported), the
+//! split once; figures are indicative only.
 
 use hierax::control::{energy_matrix, Par, System, SystemParams, ValidSystemParams};
 use hierax::hierarchy::{build_states, StatesParams};
@@ -31,8 +32,8 @@ const K: usize = 16;
 const NULLS: usize = 1000;
 const SWAPS_PER_EDGE: usize = 10;
 const SEED: u64 = 20_240_601;
-/// Nulls the numpy baseline runs (its per-pair loop costs about a second per
-/// null on this machine; the figure is scaled per null).
+/// Nulls the numpy baseline runs (0.3–1.2 s per null on this shared machine,
+/// mostly its per-pair solves; the figure is scaled per null).
 const NUMPY_NULLS: usize = 20;
 const THREADS: usize = 2;
 
@@ -107,12 +108,14 @@ fn main() {
     let dir = std::env::temp_dir().join(format!("hierax-bench-nulls-{}", std::process::id()));
     std::fs::create_dir_all(&dir).expect("temp dir");
 
+    let load = std::fs::read_to_string("/proc/loadavg").unwrap_or_default();
+    println!("load average at start: {}", load.split_whitespace().take(3).collect::<Vec<_>>().join(" "));
     let w = network(N, SEED);
     let (x, tau) = states(N, K, SEED);
     let p = SystemParams::new().check(N).expect("valid params");
     println!(
         "hierax per-subject null job: n = {N}, k = {K}, {NULLS} degree-preserving nulls \
-         ({SWAPS_PER_EDGE} swaps/edge, {} edges), {THREADS} threads (shared machine; one run)",
+         ({SWAPS_PER_EDGE} swaps/edge, {} edges), {THREADS} threads (shared machine)",
         w.iter().filter(|v| **v > 0.0).count() / 2
     );
 
@@ -120,19 +123,25 @@ fn main() {
     // Warm-up: one null end to end.
     std::hint::black_box(summarise_network(&rewire(&w, 0), &p, &x, &tau));
 
-    // 1. The whole job, as the per-subject command runs it.
-    let t0 = Instant::now();
-    let stats: Vec<f64> = pool.install(|| {
-        (0..NULLS)
-            .into_par_iter()
-            .map(|i| {
-                let s = summarise_network(&rewire(&w, i), &p, &x, &tau);
-                s.bottom_up_minus_top_down + s.asymmetry_vs_distance_spearman.r
-            })
-            .collect()
-    });
-    let total_s = t0.elapsed().as_secs_f64();
-    std::hint::black_box(stats);
+    // 1. The whole job, as the per-subject command runs it; twice, because the
+    // machine is shared and one pass can catch another helper's build.
+    let whole = |pass: usize| -> f64 {
+        let t0 = Instant::now();
+        let stats: Vec<f64> = pool.install(|| {
+            (0..NULLS)
+                .into_par_iter()
+                .map(|i| {
+                    let s = summarise_network(&rewire(&w, i), &p, &x, &tau);
+                    s.bottom_up_minus_top_down + s.asymmetry_vs_distance_spearman.r
+                })
+                .collect()
+        });
+        let t = t0.elapsed().as_secs_f64();
+        std::hint::black_box(stats);
+        println!("hierax whole job, pass {pass}: {t:.2} s");
+        t
+    };
+    let total_s = whole(1).min(whole(2));
 
     // 2. The same two halves timed apart (swaps, then energy + summaries).
     let t0 = Instant::now();
@@ -149,7 +158,7 @@ fn main() {
 
     let per_null = total_s / NULLS as f64;
     println!(
-        "hierax: {total_s:.2} s in all (target < 30 s: {}), {:.2} ms per null (wall, {THREADS} threads)",
+        "hierax: {total_s:.2} s in all (best of 2 passes) (target < 30 s: {}), {:.2} ms per null (wall, {THREADS} threads)",
         if total_s < 30.0 { "met" } else { "NOT met" },
         per_null * 1e3
     );
