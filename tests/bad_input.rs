@@ -71,7 +71,7 @@ fn b03_ragged_csv_row() {
 fn b04_text_cell() {
     case(
         &[("t.csv", b"a,b\n1,2\n3,oops\n")],
-        &["inspect", "t.csv"],
+        &["inspect", "--as", "connectome", "t.csv"],
         &["t.csv: line 3, column 2: `oops` is not a number"],
     );
 }
@@ -102,7 +102,11 @@ fn b07_npz_missing_key_lists_arrays() {
 fn b08_npz_needs_key() {
     let dir = tempfile::tempdir().unwrap();
     npz_with(dir.path(), "a.npz", &["sc", "fc"]);
-    case_in(dir.path(), &["inspect", "a.npz"], &["holds several arrays (sc, fc); name one as a.npz:KEY"]);
+    case_in(
+        dir.path(),
+        &["inspect", "--as", "connectome", "a.npz"],
+        &["holds several arrays (sc, fc); name one as a.npz:KEY"],
+    );
 }
 
 #[test]
