@@ -27,14 +27,14 @@ pub struct Cli {
 #[derive(Debug, Subcommand)]
 enum Command {
     Inspect(inspect::InspectArgs),
-    Demo(demo::DemoArgs),
+    Timescales(Box<timescales::TimescalesArgs>),
     States(states::StatesArgs),
     Gradient(gradient::GradientArgs),
     Surrogates(surrogates::SurrogatesArgs),
     Energy(energy::EnergyArgs),
-    Timescales(Box<timescales::TimescalesArgs>),
-    Subject(Box<subject::SubjectArgs>),
     Link(link::LinkArgs),
+    Subject(Box<subject::SubjectArgs>),
+    Demo(demo::DemoArgs),
 }
 
 /// Parse the command line and run the chosen command.
