@@ -175,7 +175,7 @@ impl AcfPlan {
     /// subjects with different censoring share one convention. Not guaranteed:
     /// $|\hat\rho_k|\le 1$ and positive semi-definiteness may fail when few
     /// pairs remain. A lag with no valid pair is NaN. `pairs` is $P_k$ from
-    /// [`pair_counts`] (shared by all regions of a subject). Returns $C_0$.
+    /// [`AcfPlan::pair_counts`] (shared by all regions of a subject). Returns $C_0$.
     ///
     /// # Panics
     /// On wrong buffer lengths (caller bug).
