@@ -221,3 +221,35 @@ fn subject_spin_nulls_find_the_planted_hierarchy_effects() {
         assert!(t["p_fdr"].as_f64().unwrap() <= 0.05, "{t}");
     }
 }
+
+#[test]
+fn subject_variogram_map_nulls_run_from_distances() {
+    let dir = tempfile::tempdir().unwrap();
+    let root = repo_root();
+    let d = |p: &str| root.join("demo-data").join(p);
+    let o = run(hierax()
+        .args([
+            "subject",
+            "--subject",
+            "sub-07",
+            "--tr",
+            "2",
+            "--map-nulls",
+            "99",
+            "--map-null-method",
+            "variogram",
+        ])
+        .arg("--out")
+        .arg(dir.path())
+        .arg("--connectome")
+        .arg(d("sub-07/sub-07_connectome.csv"))
+        .arg("--series")
+        .arg(d("sub-07/sub-07_bold.npy"))
+        .arg("--map")
+        .arg(d("atlas/hierarchy.csv"))
+        .arg("--distances")
+        .arg(d("atlas/distances.npy")));
+    assert!(o.status.success());
+    let text = String::from_utf8(o.stdout).unwrap();
+    assert_eq!(text.matches("vs variogram-matched hierarchy maps").count(), 3, "{text}");
+}

@@ -2,7 +2,9 @@
 
 use anyhow::Context;
 use clap::Args;
-use hierax::cohort::subject::{run_subject, NullModel, SubjectConfig, SubjectInputs, SubjectReport};
+use hierax::cohort::subject::{
+    run_subject, MapNullMethod, NullModel, SubjectConfig, SubjectInputs, SubjectReport,
+};
 use hierax::control::{SystemParams, TimeModel};
 use hierax::io::InputSpec;
 use std::collections::BTreeMap;
@@ -18,6 +20,15 @@ pub enum NullModelArg {
     Strength,
     /// Swaps that keep each edge's length bin (after Betzel & Bassett 2018); needs --distances.
     Geometry,
+}
+
+/// Command-line spelling of [`MapNullMethod`].
+#[derive(Clone, Copy, Debug, clap::ValueEnum)]
+pub enum MapNullArg {
+    /// Spin permutations on the sphere (Alexander-Bloch et al. 2018).
+    Spin,
+    /// Variogram-matched surrogates (Burt et al. 2020).
+    Variogram,
 }
 
 /// Command-line spelling of [`TimeModel`].
@@ -94,9 +105,13 @@ pub struct JobOptions {
     #[arg(long, value_enum, default_value = "degree")]
     pub null_model: NullModelArg,
 
-    /// Number of spun hierarchy maps for map nulls (0 = none; needs --sphere).
+    /// Number of surrogate hierarchy maps for map nulls (0 = none).
     #[arg(long, default_value_t = 0, value_name = "M")]
     pub map_nulls: usize,
+
+    /// How surrogate maps are made: spin (needs --sphere) or variogram (needs --distances).
+    #[arg(long, value_enum, default_value = "spin")]
+    pub map_null_method: MapNullArg,
 
     /// Seed of every random draw.
     #[arg(long, default_value_t = 0)]
@@ -127,6 +142,10 @@ impl JobOptions {
             NullModelArg::Geometry => NullModel::Geometry,
         };
         c.map_nulls = self.map_nulls;
+        c.map_null_method = match self.map_null_method {
+            MapNullArg::Spin => MapNullMethod::Spin,
+            MapNullArg::Variogram => MapNullMethod::Variogram,
+        };
         c.seed = self.seed;
         c
     }

@@ -11,7 +11,8 @@
 //! 4. compute the k × k minimum-energy matrix and node metrics (`control`);
 //! 5. build the pair table and per-subject summaries (`link`);
 //! 6. recompute the summaries on rewired networks (`stats::nulls`) and, when
-//!    sphere coordinates are given, on spun hierarchy maps (`hierarchy::spin`),
+//!    asked, on surrogate hierarchy maps (spins, `hierarchy::spin`, or
+//!    variogram-matched maps, `hierarchy::variogram`),
 //!    and turn them into permutation p-values with Benjamini–Hochberg FDR
 //!    across the family of tests (`stats::inference`).
 //!
@@ -20,7 +21,10 @@
 
 use super::CohortError;
 use crate::control::{self, energy_matrix, node_metrics, Par, System, SystemParams};
-use crate::hierarchy::{build_states, spin_surrogates, SphereLayout, SpinParams, States, StatesParams};
+use crate::hierarchy::{
+    build_states, spin_surrogates, variogram_surrogates, SphereLayout, SpinParams, States, StatesParams,
+    VariogramModel, VariogramParams,
+};
 use crate::io::hdf5::{self as h5, AttrValue, Group};
 use crate::io::provenance::{InputRecord, Provenance};
 use crate::io::table::{Column, Table};
@@ -51,6 +55,27 @@ pub enum NullModel {
     Strength,
     /// Degree- and edge-length-preserving swaps (needs distances).
     Geometry,
+}
+
+/// How surrogate hierarchy maps are made for map nulls.
+#[derive(Clone, Copy, Debug, PartialEq, Eq, Serialize, Default)]
+#[serde(rename_all = "kebab-case")]
+pub enum MapNullMethod {
+    /// Spin permutations of parcel centroids on the sphere (default; needs sphere coordinates).
+    #[default]
+    Spin,
+    /// Variogram-matched surrogates (Burt et al. 2020; needs a distance matrix).
+    Variogram,
+}
+
+impl MapNullMethod {
+    /// Short name used in test labels.
+    pub fn label(self) -> &'static str {
+        match self {
+            MapNullMethod::Spin => "spun",
+            MapNullMethod::Variogram => "variogram-matched",
+        }
+    }
 }
 
 /// The inputs of one subject.
@@ -111,8 +136,10 @@ pub struct SubjectConfig {
     pub swaps_per_edge: usize,
     /// Edge-length bins of the geometry-preserving model.
     pub length_bins: usize,
-    /// Number of spun hierarchy maps (0 = none; needs sphere coordinates).
+    /// Number of surrogate hierarchy maps (0 = none).
     pub map_nulls: usize,
+    /// How the surrogate maps are made.
+    pub map_null_method: MapNullMethod,
     /// False discovery rate at which the family of null tests is read.
     pub fdr_alpha: f64,
     /// Seed of every random draw of the job.
@@ -149,6 +176,7 @@ impl SubjectConfig {
             swaps_per_edge: 10,
             length_bins: 10,
             map_nulls: 0,
+            map_null_method: MapNullMethod::Spin,
             fdr_alpha: 0.05,
             seed: 0,
         }
@@ -513,30 +541,51 @@ pub fn run_subject(
         }
     }
     if cfg.map_nulls > 0 {
-        let (sphere, hemi) = match (&inputs.sphere, &inputs.hemisphere) {
-            (Some(s), h) => (s, h),
-            (None, _) => {
-                return Err(invalid("map nulls", "spin nulls of the map need sphere coordinates (--sphere)"))
+        let surrogates: Array2<f64> = match cfg.map_null_method {
+            MapNullMethod::Spin => {
+                let (sphere, hemi) = match (&inputs.sphere, &inputs.hemisphere) {
+                    (Some(s), h) => (s, h),
+                    (None, _) => {
+                        return Err(invalid(
+                            "map nulls",
+                            "spin nulls of the map need sphere coordinates (--sphere)",
+                        ))
+                    }
+                };
+                records.push(InputRecord::of("sphere", sphere)?);
+                let coords = read_array(sphere)?.matrix()?;
+                let hemi_values = match hemi {
+                    Some(h) => {
+                        records.push(InputRecord::of("hemisphere", h)?);
+                        Some(hemisphere_codes(h)?)
+                    }
+                    None => None,
+                };
+                let layout = SphereLayout::new(&coords, hemi_values.as_deref(), 0.02)
+                    .map_err(|e| invalid("map nulls", format!("{sphere}: {e}")))?;
+                spin_surrogates(&values, &layout, &SpinParams::new(cfg.map_nulls, cfg.seed))
+                    .map_err(|e| invalid("map nulls", format!("{}: {e}", inputs.map)))?
+                    .surrogates
+            }
+            MapNullMethod::Variogram => {
+                let d = dist.as_ref().ok_or_else(|| {
+                    invalid(
+                        "map nulls",
+                        "variogram-matched nulls of the map need a distance matrix (--distances)",
+                    )
+                })?;
+                let vp = VariogramParams::new(cfg.map_nulls, cfg.seed);
+                let model = VariogramModel::new(d, &vp).map_err(|e| invalid("map nulls", e.to_string()))?;
+                variogram_surrogates(&values, &model, &vp)
+                    .map_err(|e| invalid("map nulls", format!("{}: {e}", inputs.map)))?
+                    .surrogates
             }
         };
-        records.push(InputRecord::of("sphere", sphere)?);
-        let coords = read_array(sphere)?.matrix()?;
-        let hemi_values = match hemi {
-            Some(h) => {
-                records.push(InputRecord::of("hemisphere", h)?);
-                Some(hemisphere_codes(h)?)
-            }
-            None => None,
-        };
-        let layout = SphereLayout::new(&coords, hemi_values.as_deref(), 0.02)
-            .map_err(|e| invalid("map nulls", format!("{sphere}: {e}")))?;
-        let spins = spin_surrogates(&values, &layout, &SpinParams::new(cfg.map_nulls, cfg.seed))
-            .map_err(|e| invalid("map nulls", format!("{}: {e}", inputs.map)))?;
         // Spun map -> re-binned states on the real network, and the timescale-hierarchy correlation.
         let results: Vec<Option<([f64; 2], f64)>> = (0..cfg.map_nulls)
             .into_par_iter()
             .map(|m| {
-                let spun: Vec<f64> = spins.surrogates.column(m).to_vec();
+                let spun: Vec<f64> = surrogates.column(m).to_vec();
                 let st = build_states(&spun, &sparams).ok()?;
                 let st_tau = link::bin_means(&tau, &st.bins).ok()?;
                 // Same network, new states: reuse its one decomposition.
@@ -564,7 +613,7 @@ pub fn run_subject(
             let p = permutation_p_value(observed[k], &null, Alternative::TwoSided)
                 .map_err(|e| invalid("map nulls", e.to_string()))?;
             tests.push(NullTest {
-                name: format!("{label} vs spun hierarchy maps"),
+                name: format!("{label} vs {} hierarchy maps", cfg.map_null_method.label()),
                 observed: observed[k],
                 n_null: null.len(),
                 null_mean: mean_finite(&null),
@@ -577,7 +626,10 @@ pub fn run_subject(
             let p = permutation_p_value(obs, &null, Alternative::TwoSided)
                 .map_err(|e| invalid("map nulls", e.to_string()))?;
             tests.push(NullTest {
-                name: "timescale_vs_hierarchy_spearman vs spun hierarchy maps".into(),
+                name: format!(
+                    "timescale_vs_hierarchy_spearman vs {} hierarchy maps",
+                    cfg.map_null_method.label()
+                ),
                 observed: obs,
                 n_null: null.len(),
                 null_mean: mean_finite(&null),
