@@ -72,7 +72,7 @@ const CSS: &str = "body{font-family:sans-serif;max-width:60rem;margin:2rem auto;
 h1{font-size:1.5rem}h2{font-size:1.15rem;margin-top:2rem;border-bottom:1px solid #cbd2d9}\
 .notice{background:#fff4e5;border-left:4px solid #c2571a;padding:.5rem .8rem}\
 figure{display:inline-block;margin:.5rem 1rem .5rem 0}figcaption{font-size:.85rem;color:#52606d;max-width:420px}\
-table{border-collapse:collapse;font-size:.85rem}td,th{border:1px solid #cbd2d9;padding:.2rem .5rem;text-align:right}\
+table{border-collapse:collapse;font-size:.85rem}td,th{border:1px solid #cbd2d9;padding:.2rem .5rem;text-align:right}td:first-child{text-align:left}\
 th{background:#f5f7fa}footer{margin-top:3rem;font-size:.8rem;color:#7b8794}";
 
 #[cfg(test)]
