@@ -27,7 +27,8 @@ fn demo_writes_every_output_and_recovers_the_planted_effects() {
     let dir = tempfile::tempdir().unwrap();
     let out = dir.path().join("demo");
     demo_into(&out);
-    for f in ["cohort.csv", "run_log.csv", "age_models.csv", "cohort.json", "report.html"] {
+    for f in ["cohort.csv", "run_log.csv", "age_models.csv", "group_tests.csv", "cohort.json", "report.html"]
+    {
         assert!(out.join(f).is_file(), "{f} missing");
     }
     assert!(!files_below(&out).iter().any(|p| p.to_string_lossy().contains("partial")));
@@ -46,6 +47,19 @@ fn demo_writes_every_output_and_recovers_the_planted_effects() {
         let s = &o["result"]["Ok"]["summary"];
         assert!(s["bottom_up_minus_top_down"].as_f64().unwrap() < 0.0, "{}", o["subject"]);
         assert!(s["asymmetry_vs_distance_line"]["slope"].as_f64().unwrap() < 0.0, "{}", o["subject"]);
+    }
+    // Across subjects (sign-flip test): bottom-up cheaper, and cheaper bottom-up transitions go
+    // with longer target timescales (negative asymmetry vs timescale-shift correlation).
+    let groups = cohort["group_tests"].as_array().unwrap();
+    for (name, sign) in [
+        ("bottom_up_minus_top_down", -1.0),
+        ("asymmetry_distance_slope", -1.0),
+        ("asymmetry_timescale_shift_spearman", -1.0),
+        ("timescale_hierarchy_spearman", 1.0),
+    ] {
+        let g = groups.iter().find(|g| g["outcome"] == name).unwrap();
+        assert!(g["mean"].as_f64().unwrap() * sign > 0.0, "{g}");
+        assert!(g["p_value"].as_f64().unwrap() < 0.01, "{g}");
     }
     let age_models = std::fs::read_to_string(out.join("age_models.csv")).unwrap();
     let row = age_models.lines().find(|l| l.starts_with("bottom_up_minus_top_down,age,")).unwrap();

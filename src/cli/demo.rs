@@ -2,7 +2,7 @@
 
 use anyhow::{bail, Context};
 use clap::Args;
-use hierax::cohort::model::{fit_outcome, OUTCOMES};
+use hierax::cohort::model::{fit_outcome, group_tests, OUTCOMES};
 use hierax::cohort::run::{run_cohort, SharedInputs};
 use hierax::cohort::subject::SubjectConfig;
 use hierax::cohort::{Manifest, Patterns};
@@ -18,7 +18,7 @@ use std::process::ExitCode;
 #[derive(Debug, Args)]
 #[command(after_help = "Example:\n  hierax demo --out demo-output\n\n\
     Writes demo-output/sub-XX/ (HDF5, CSV, JSON per participant), cohort.csv, run_log.csv,\n\
-    age_models.csv, cohort.json and report.html. The demo data are invented.")]
+    age_models.csv, group_tests.csv, cohort.json and report.html. The demo data are invented.")]
 pub struct DemoArgs {
     /// Folder for the outputs (created if needed).
     #[arg(long, default_value = "demo-output")]
@@ -97,33 +97,41 @@ pub fn run(args: DemoArgs) -> anyhow::Result<ExitCode> {
         .iter()
         .map(|(name, f)| (name.to_string(), fit_outcome(&run, *f, &covariates).map_err(|e| e.to_string())))
         .collect();
+    let groups = group_tests(&run, 9999, args.seed).map_err(|e| anyhow::anyhow!("cohort tests: {e}"))?;
     run.cohort_table().write_csv(&args.out.join("cohort.csv"))?;
     run.log_table().write_csv(&args.out.join("run_log.csv"))?;
     model_table(&models).write_csv(&args.out.join("age_models.csv"))?;
+    {
+        use hierax::io::table::{Column, Table};
+        Table::new()
+            .with("outcome", Column::Str(groups.iter().map(|g| g.outcome.clone()).collect()))
+            .with("n", Column::I64(groups.iter().map(|g| g.n as i64).collect()))
+            .with("mean", Column::F64(groups.iter().map(|g| g.mean).collect()))
+            .with("p_value", Column::F64(groups.iter().map(|g| g.p_value).collect()))
+            .with("sign_flips", Column::I64(groups.iter().map(|g| g.permutations as i64).collect()))
+            .write_csv(&args.out.join("group_tests.csv"))?;
+    }
     write_json(
         &args.out.join("cohort.json"),
-        &serde_json::json!({ "config": cfg, "models": models, "run": run }),
+        &serde_json::json!({ "config": cfg, "group_tests": groups, "models": models, "run": run }),
     )?;
     let html = hierax::report::cohort::cohort_report(
         "hierax demo: Larkspur Youth Imaging Pilot (INVENTED data)",
         "Every participant, connectome, series and map in this report is invented by examples/make_demo.rs \
          for demonstration; nothing here describes real people.",
         &run,
+        &groups,
         &models,
     );
     hierax::io::atomic::write_bytes_atomic(&args.out.join("report.html"), html.as_bytes())?;
 
-    let reps = run.reports();
-    let mean = |f: &dyn Fn(&hierax::cohort::subject::SubjectReport) -> f64| {
-        reps.iter().map(|r| f(r)).sum::<f64>() / reps.len().max(1) as f64
-    };
-    println!("  subjects      {} succeeded, {} failed", reps.len(), run.n_failed());
-    println!(
-        "  cohort means  bottom-up minus top-down energy {:+.4}; asymmetry slope {:+.4} per bin; timescale-hierarchy rho {:+.3}",
-        mean(&|r| r.summary.bottom_up_minus_top_down),
-        mean(&|r| r.summary.asymmetry_vs_distance_line.slope),
-        mean(&|r| r.timescale_vs_hierarchy_spearman.unwrap_or(f64::NAN))
-    );
+    println!("  subjects      {} succeeded, {} failed", run.reports().len(), run.n_failed());
+    for g in &groups {
+        println!(
+            "  cohort test   {} = {:+.4} on average (sign-flip p {:.4}, n {})",
+            g.outcome, g.mean, g.p_value, g.n
+        );
+    }
     for (name, fit) in &models {
         if let Ok(f) = fit {
             if let Some(j) = f.terms.iter().position(|t| t == "age") {

@@ -67,3 +67,46 @@ pub fn fit_outcome(run: &CohortRun, outcome: Outcome, covariates: &[&str]) -> Re
     let terms: Vec<&str> = names.iter().map(String::as_str).collect();
     ols(&x, &y, &terms)
 }
+
+/// A cohort-level test of one subject-level outcome against 0.
+#[derive(Clone, Debug, PartialEq, serde::Serialize)]
+pub struct GroupTest {
+    /// The outcome.
+    pub outcome: String,
+    /// Subjects with a finite value.
+    pub n: usize,
+    /// Mean across subjects.
+    pub mean: f64,
+    /// Two-sided sign-flip permutation p-value.
+    pub p_value: f64,
+    /// Sign flips drawn.
+    pub permutations: usize,
+}
+
+/// Test each of [`OUTCOMES`] against 0 across the cohort with a sign-flip
+/// permutation test ([`crate::stats::inference::sign_flip_test`]); for
+/// example, whether bottom-up transitions are cheaper than top-down ones
+/// across subjects. Seeded: the same seed gives the same p-values.
+///
+/// # Errors
+/// [`StatsError::TooFew`] when fewer than 2 subjects have a finite value.
+pub fn group_tests(run: &CohortRun, permutations: usize, seed: u64) -> Result<Vec<GroupTest>, StatsError> {
+    use rand::SeedableRng;
+    let reps = run.reports();
+    OUTCOMES
+        .iter()
+        .enumerate()
+        .map(|(i, (name, f))| {
+            let v: Vec<f64> = reps.iter().map(|r| f(r)).filter(|x| x.is_finite()).collect();
+            let mut rng = rand_chacha::ChaCha20Rng::seed_from_u64(seed);
+            rng.set_stream(i as u64);
+            let (mean, p) = crate::stats::inference::sign_flip_test(
+                &v,
+                permutations,
+                crate::stats::inference::Alternative::TwoSided,
+                &mut rng,
+            )?;
+            Ok(GroupTest { outcome: name.to_string(), n: v.len(), mean, p_value: p, permutations })
+        })
+        .collect()
+}

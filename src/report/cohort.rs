@@ -3,6 +3,7 @@
 
 use super::html::Report;
 use super::svg;
+use crate::cohort::model::GroupTest;
 use crate::cohort::run::CohortRun;
 use crate::cohort::subject::SubjectReport;
 use crate::stats::regression::{least_squares_line, OlsFit};
@@ -15,11 +16,13 @@ fn fmt(v: f64) -> String {
     }
 }
 
-/// Build the cohort report. `models` holds (outcome name, fit or error text).
+/// Build the cohort report. `groups` are the cohort-level tests against 0;
+/// `models` holds (outcome name, fit or error text).
 pub fn cohort_report(
     title: &str,
     intro: &str,
     run: &CohortRun,
+    groups: &[GroupTest],
     models: &[(String, Result<OlsFit, String>)],
 ) -> String {
     let reps = run.reports();
@@ -80,6 +83,22 @@ pub fn cohort_report(
             &format!("{title}, one point per subject, with the least-squares line on age."),
         );
     }
+
+    r.heading("Cohort tests");
+    r.paragraph("Each subject-level outcome tested against 0 across subjects by a sign-flip permutation test (two-sided; Nichols & Holmes 2002). A negative bottom-up minus top-down energy means bottom-up transitions are cheaper.");
+    let rows: Vec<Vec<String>> = groups
+        .iter()
+        .map(|g| {
+            vec![
+                g.outcome.clone(),
+                g.n.to_string(),
+                fmt(g.mean),
+                format!("{:.4}", g.p_value),
+                g.permutations.to_string(),
+            ]
+        })
+        .collect();
+    r.table(&["outcome", "n", "mean", "p", "sign flips"], &rows);
 
     r.heading("Age models");
     r.paragraph("Ordinary least squares of each subject-level outcome on the covariates (classical standard errors; categorical covariates in treatment coding).");
