@@ -267,3 +267,52 @@ fn subject_variogram_map_nulls_run_from_distances() {
     let text = String::from_utf8(o.stdout).unwrap();
     assert_eq!(text.matches("vs variogram-matched hierarchy maps").count(), 3, "{text}");
 }
+
+#[test]
+fn cohort_run_logs_a_failing_subject_and_finishes_the_others() {
+    let dir = tempfile::tempdir().unwrap();
+    let data = dir.path().join("data");
+    let root = repo_root();
+    std::fs::create_dir_all(&data).unwrap();
+    std::fs::write(
+        data.join("participants.tsv"),
+        "participant_id\tage\nsub-01\t9.4\nsub-02\t10.4\nsub-03\t16.0\n",
+    )
+    .unwrap();
+    for s in ["sub-01", "sub-02", "sub-03"] {
+        std::fs::create_dir_all(data.join(s)).unwrap();
+        for f in ["connectome.csv", "bold.npy", "confounds.tsv"] {
+            let name = format!("{s}_{f}");
+            std::fs::copy(root.join("demo-data").join(s).join(&name), data.join(s).join(&name)).unwrap();
+        }
+    }
+    // sub-02's connectome gets a negative weight.
+    let c = data.join("sub-02/sub-02_connectome.csv");
+    let text = std::fs::read_to_string(&c).unwrap();
+    let mut lines: Vec<String> = text.lines().map(str::to_string).collect();
+    let mut cells: Vec<String> = lines[2].split(',').map(str::to_string).collect();
+    cells[1] = "-3".into();
+    lines[2] = cells.join(",");
+    std::fs::write(&c, lines.join("\n") + "\n").unwrap();
+
+    let out = dir.path().join("out");
+    let o = run(hierax()
+        .args(["cohort", "--tr", "2", "--quiet", "--data"])
+        .arg(&data)
+        .arg("--map")
+        .arg(root.join("demo-data/atlas/hierarchy.csv"))
+        .arg("--out")
+        .arg(&out));
+    assert_eq!(o.status.code(), Some(1), "some subjects failed -> exit 1");
+    let err = String::from_utf8(o.stderr).unwrap();
+    assert!(
+        err.contains("sub-02:")
+            && err.contains("sub-02_connectome.csv: connectome: expected non-negative weights"),
+        "{err}"
+    );
+    let log = std::fs::read_to_string(out.join("run_log.csv")).unwrap();
+    assert!(log.contains("sub-01,ok") && log.contains("sub-02,failed") && log.contains("sub-03,ok"), "{log}");
+    assert!(out.join("sub-01/sub-01_hierax.h5").is_file() && out.join("sub-03/sub-03_hierax.h5").is_file());
+    assert!(!out.join("sub-02").exists(), "nothing written for the failed subject");
+    assert!(!files_below(&out).iter().any(|p| p.to_string_lossy().contains("partial")));
+}

@@ -1,14 +1,12 @@
 //! `hierax demo`: the whole job on the bundled, invented cohort.
 
+use super::cohort::{run_and_report, Reporting};
 use anyhow::{bail, Context};
 use clap::Args;
-use hierax::cohort::model::{fit_outcome, group_tests, OUTCOMES};
-use hierax::cohort::run::{run_cohort, SharedInputs};
+use hierax::cohort::run::SharedInputs;
 use hierax::cohort::subject::SubjectConfig;
 use hierax::cohort::{Manifest, Patterns};
-use hierax::io::table::write_json;
 use hierax::io::InputSpec;
-use indicatif::{ProgressBar, ProgressStyle};
 use std::path::PathBuf;
 use std::process::ExitCode;
 
@@ -78,101 +76,19 @@ pub fn run(args: DemoArgs) -> anyhow::Result<ExitCode> {
         cfg.bins,
         args.nulls
     );
-    let bar =
-        if args.quiet { ProgressBar::hidden() } else { ProgressBar::new(manifest.participants.len() as u64) };
-    bar.set_style(
-        ProgressStyle::with_template("  {bar:30} {pos}/{len} subjects {elapsed}")
-            .unwrap_or(ProgressStyle::default_bar()),
-    );
-    let run = run_cohort(&manifest, &shared, &cfg, &args.out, &|o| {
-        if let Err(e) = &o.result {
-            bar.println(format!("hierax: error: {e}"));
-        }
-        bar.inc(1);
-    })?;
-    bar.finish_and_clear();
-
-    let covariates = ["age", "sex", "mean_framewise_displacement"];
-    let models: Vec<(String, Result<_, String>)> = OUTCOMES
-        .iter()
-        .map(|(name, f)| (name.to_string(), fit_outcome(&run, *f, &covariates).map_err(|e| e.to_string())))
-        .collect();
-    let groups = group_tests(&run, 9999, args.seed).map_err(|e| anyhow::anyhow!("cohort tests: {e}"))?;
-    run.cohort_table().write_csv(&args.out.join("cohort.csv"))?;
-    run.log_table().write_csv(&args.out.join("run_log.csv"))?;
-    model_table(&models).write_csv(&args.out.join("age_models.csv"))?;
-    {
-        use hierax::io::table::{Column, Table};
-        Table::new()
-            .with("outcome", Column::Str(groups.iter().map(|g| g.outcome.clone()).collect()))
-            .with("n", Column::I64(groups.iter().map(|g| g.n as i64).collect()))
-            .with("mean", Column::F64(groups.iter().map(|g| g.mean).collect()))
-            .with("p_value", Column::F64(groups.iter().map(|g| g.p_value).collect()))
-            .with("sign_flips", Column::I64(groups.iter().map(|g| g.permutations as i64).collect()))
-            .write_csv(&args.out.join("group_tests.csv"))?;
-    }
-    write_json(
-        &args.out.join("cohort.json"),
-        &serde_json::json!({ "config": cfg, "group_tests": groups, "models": models, "run": run }),
+    let code = run_and_report(
+        &manifest,
+        &shared,
+        &cfg,
+        &args.out,
+        &["age", "sex", "mean_framewise_displacement"],
+        &Reporting {
+            title: "hierax demo: Larkspur Youth Imaging Pilot (INVENTED data)",
+            intro: "Every participant, connectome, series and map in this report is invented by examples/make_demo.rs \
+                    for demonstration; nothing here describes real people.",
+            quiet: args.quiet,
+        },
     )?;
-    let html = hierax::report::cohort::cohort_report(
-        "hierax demo: Larkspur Youth Imaging Pilot (INVENTED data)",
-        "Every participant, connectome, series and map in this report is invented by examples/make_demo.rs \
-         for demonstration; nothing here describes real people.",
-        &run,
-        &groups,
-        &models,
-    );
-    hierax::io::atomic::write_bytes_atomic(&args.out.join("report.html"), html.as_bytes())?;
-
-    println!("  subjects      {} succeeded, {} failed", run.reports().len(), run.n_failed());
-    for g in &groups {
-        println!(
-            "  cohort test   {} = {:+.4} on average (sign-flip p {:.4}, n {})",
-            g.outcome, g.mean, g.p_value, g.n
-        );
-    }
-    for (name, fit) in &models {
-        if let Ok(f) = fit {
-            if let Some(j) = f.terms.iter().position(|t| t == "age") {
-                println!(
-                    "  age model     {name}: {:+.4} per year (SE {:.4}, p {:.2e}, n {})",
-                    f.coef[j], f.se[j], f.p_value[j], f.n
-                );
-            }
-        }
-    }
-    println!("  written to    {} (open report.html)", args.out.display());
-    println!("Research software: results are not for clinical decisions. The demo data are invented.");
-    Ok(if run.n_failed() == 0 { ExitCode::SUCCESS } else { ExitCode::from(1) })
-}
-
-fn model_table(
-    models: &[(String, Result<hierax::stats::regression::OlsFit, String>)],
-) -> hierax::io::table::Table {
-    use hierax::io::table::{Column, Table};
-    let mut outcome = Vec::new();
-    let mut term = Vec::new();
-    let (mut est, mut se, mut t, mut p, mut n) = (Vec::new(), Vec::new(), Vec::new(), Vec::new(), Vec::new());
-    for (name, fit) in models {
-        if let Ok(f) = fit {
-            for j in 0..f.terms.len() {
-                outcome.push(name.clone());
-                term.push(f.terms[j].clone());
-                est.push(f.coef[j]);
-                se.push(f.se[j]);
-                t.push(f.t[j]);
-                p.push(f.p_value[j]);
-                n.push(f.n as i64);
-            }
-        }
-    }
-    Table::new()
-        .with("outcome", Column::Str(outcome))
-        .with("term", Column::Str(term))
-        .with("estimate", Column::F64(est))
-        .with("se", Column::F64(se))
-        .with("t", Column::F64(t))
-        .with("p_value", Column::F64(p))
-        .with("n", Column::I64(n))
+    println!("The demo data are invented.");
+    Ok(code)
 }

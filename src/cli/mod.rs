@@ -1,6 +1,7 @@
 //! Command-line parsing. Each command has its own file holding its clap
 //! arguments and a `run` that turns them into library calls.
 
+mod cohort;
 mod demo;
 mod energy;
 mod gradient;
@@ -34,6 +35,7 @@ enum Command {
     Energy(energy::EnergyArgs),
     Link(link::LinkArgs),
     Subject(Box<subject::SubjectArgs>),
+    Cohort(Box<cohort::CohortArgs>),
     Demo(demo::DemoArgs),
 }
 
@@ -49,6 +51,7 @@ pub fn run() -> anyhow::Result<ExitCode> {
         Command::Energy(args) => energy::run(args),
         Command::Timescales(args) => timescales::run(*args),
         Command::Subject(args) => subject::run(*args),
+        Command::Cohort(args) => cohort::run(*args),
         Command::Link(args) => link::run(args),
     }
 }
