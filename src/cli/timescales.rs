@@ -190,29 +190,16 @@ pub fn run(args: TimescalesArgs) -> anyhow::Result<ExitCode> {
     if let Some(raw) = &args.confounds {
         let cspec = InputSpec::parse(raw)?;
         let table = read_array(&cspec)?;
-        let m = table.matrix()?;
-        let cols = table
-            .col_names
-            .clone()
-            .with_context(|| format!("{cspec}: confounds table: expected a header row naming the columns"))?;
-        if m.nrows() != n_frames {
-            bail!(
-                "{cspec}: confounds table: expected {n_frames} rows (one per frame of {spec}), found {}",
-                m.nrows()
-            );
-        }
-        let column = |name: &str| -> anyhow::Result<Vec<f64>> {
-            let j = cols
-                .iter()
-                .position(|c| c == name)
-                .with_context(|| format!("{cspec}: no column `{name}`; found: {}", cols.join(", ")))?;
-            Ok(m.column(j).to_vec())
-        };
-        for name in &args.confound_columns {
-            confounds.push(Confound { name: name.clone(), values: column(name)? });
-        }
+        let mut names: Vec<&str> = args.confound_columns.iter().map(String::as_str).collect();
         if args.fd_threshold.is_some() {
-            fd = Some(column(&args.fd_column)?);
+            names.push(&args.fd_column);
+        }
+        let mut values = validate::frame_columns(&table, n_frames, &names)?;
+        if args.fd_threshold.is_some() {
+            fd = values.pop();
+        }
+        for (name, v) in args.confound_columns.iter().zip(values) {
+            confounds.push(Confound { name: name.clone(), values: v });
         }
         inputs.push(InputRecord::of("confounds", &cspec)?);
     }

@@ -239,7 +239,9 @@ fn invalid(what: &str, msg: impl Into<String>) -> CohortError {
     CohortError::Step { step: what.to_string(), message: msg.into() }
 }
 
-/// Read a confounds table: the displacement column and any named columns.
+/// Read a confounds table: the displacement column (if censoring) and the
+/// named confound columns. Finiteness is checked by the timescale module on
+/// the frames it keeps.
 fn read_confounds(
     spec: &InputSpec,
     n_frames: usize,
@@ -247,39 +249,14 @@ fn read_confounds(
     want_fd: bool,
 ) -> Result<(Option<Vec<f64>>, Vec<Confound>), CohortError> {
     let la = read_array(spec)?;
-    let names = la.col_names.clone().unwrap_or_default();
-    let m = la.matrix()?;
-    if m.nrows() != n_frames {
-        return Err(IoError::invalid(
-            spec,
-            "confounds",
-            format!("expected {n_frames} rows (frames), found {}", m.nrows()),
-        )
-        .into());
+    let mut names: Vec<&str> = columns.iter().map(String::as_str).collect();
+    if want_fd {
+        names.push("framewise_displacement");
     }
-    let column = |name: &str| -> Result<Vec<f64>, CohortError> {
-        let j = names.iter().position(|c| c == name).ok_or_else(|| IoError::MissingKey {
-            path: spec.path.clone(),
-            kind: "column",
-            key: name.to_string(),
-            available: names.join(", "),
-        })?;
-        Ok(m.column(j).to_vec())
-    };
-    let fd = if want_fd { Some(column("framewise_displacement")?) } else { None };
-    let mut confounds = Vec::new();
-    for c in columns {
-        let values = column(c)?;
-        if let Some(i) = values.iter().position(|v| !v.is_finite()) {
-            return Err(IoError::invalid(
-                spec,
-                format!("confound `{c}`"),
-                format!("expected finite values, found {} at frame {}", values[i], i + 1),
-            )
-            .into());
-        }
-        confounds.push(Confound { name: c.clone(), values });
-    }
+    let mut values = validate::frame_columns(&la, n_frames, &names)?;
+    let fd = if want_fd { values.pop() } else { None };
+    let confounds =
+        columns.iter().zip(values).map(|(c, v)| Confound { name: c.clone(), values: v }).collect();
     Ok((fd, confounds))
 }
 

@@ -352,6 +352,38 @@ pub fn frame_mask(la: &LoadedArray, n_frames: usize) -> Result<Vec<bool>, IoErro
         .collect()
 }
 
+/// Pick named columns of a per-frame table (e.g. a BIDS confounds TSV) with
+/// one row per frame. Values are returned as read: non-finite cells (BIDS
+/// writes `n/a` for the first frame's displacement) are left for the
+/// consumer, which knows which frames it uses.
+///
+/// # Errors
+/// [`IoError::Invalid`] when the row count differs from `n_frames`;
+/// [`IoError::MissingKey`] naming the columns the table has.
+pub fn frame_columns(la: &LoadedArray, n_frames: usize, names: &[&str]) -> Result<Vec<Vec<f64>>, IoError> {
+    let m = la.matrix()?;
+    if m.nrows() != n_frames {
+        return Err(IoError::invalid(
+            &la.spec,
+            "per-frame table",
+            format!("expected {n_frames} rows (one per frame), found {}", m.nrows()),
+        ));
+    }
+    let header = la.col_names.clone().unwrap_or_default();
+    names
+        .iter()
+        .map(|name| {
+            let j = header.iter().position(|c| c == name).ok_or_else(|| IoError::MissingKey {
+                path: la.spec.path.clone(),
+                kind: "column",
+                key: name.to_string(),
+                available: if header.is_empty() { "(no header row)".into() } else { header.join(", ") },
+            })?;
+            Ok(m.column(j).to_vec())
+        })
+        .collect()
+}
+
 /// Check that two inputs name the same regions in the same order.
 ///
 /// # Errors
