@@ -1,14 +1,13 @@
 //! `hierax cohort`: the whole job over a cohort of your own, and the
 //! machinery `hierax demo` shares with it.
 
-use super::subject::JobOptions;
+use super::subject::{JobOptions, StudyArgs};
 use clap::Args;
 use hierax::cohort::model::{fit_outcome, group_tests, OUTCOMES};
 use hierax::cohort::run::{run_cohort, SharedInputs};
 use hierax::cohort::subject::SubjectConfig;
 use hierax::cohort::{Manifest, Patterns};
 use hierax::io::table::write_json;
-use hierax::io::InputSpec;
 use indicatif::{ProgressBar, ProgressStyle};
 use std::path::{Path, PathBuf};
 use std::process::ExitCode;
@@ -41,29 +40,8 @@ pub struct CohortArgs {
     #[arg(long, default_value = "sub-{id}/sub-{id}_confounds.tsv", value_name = "PATTERN")]
     confounds_pattern: String,
 
-    /// Hierarchy map shared by all subjects, PATH[:KEY].
-    #[arg(long, value_name = "SPEC")]
-    map: String,
-
-    /// Repetition time in seconds.
-    #[arg(long, value_name = "SECONDS")]
-    tr: f64,
-
-    /// Region distances (n x n), for geometry-preserving or variogram nulls.
-    #[arg(long, value_name = "SPEC")]
-    distances: Option<String>,
-
-    /// Parcel sphere coordinates (n x 3) for spin nulls.
-    #[arg(long, value_name = "SPEC")]
-    sphere: Option<String>,
-
-    /// Hemisphere per parcel (L/R or 0/1).
-    #[arg(long, value_name = "SPEC")]
-    hemisphere: Option<String>,
-
-    /// The connectomes are directed.
-    #[arg(long)]
-    directed: bool,
+    #[command(flatten)]
+    study: StudyArgs,
 
     /// Covariates of participants.tsv entering the age models, comma separated.
     #[arg(long, value_delimiter = ',', default_value = "age", value_name = "COLUMNS")]
@@ -81,10 +59,6 @@ pub struct CohortArgs {
     quiet: bool,
 }
 
-fn spec(s: &Option<String>) -> anyhow::Result<Option<InputSpec>> {
-    s.as_deref().map(InputSpec::parse).transpose().map_err(Into::into)
-}
-
 pub fn run(args: CohortArgs) -> anyhow::Result<ExitCode> {
     let patterns = Patterns {
         connectome: args.connectome_pattern.clone(),
@@ -92,13 +66,8 @@ pub fn run(args: CohortArgs) -> anyhow::Result<ExitCode> {
         confounds: (args.confounds_pattern != "none").then(|| args.confounds_pattern.clone()),
     };
     let manifest = Manifest::discover(&args.data, &patterns)?;
-    let shared = SharedInputs {
-        map: InputSpec::parse(&args.map)?,
-        distances: spec(&args.distances)?,
-        sphere: spec(&args.sphere)?,
-        hemisphere: spec(&args.hemisphere)?,
-    };
-    let cfg = args.job.config(args.tr, args.directed);
+    let shared = args.study.shared()?;
+    let cfg = args.study.config(&args.job);
     println!("hierax cohort: {} participants from {}", manifest.participants.len(), args.data.display());
     let covariates: Vec<&str> = args.covariates.iter().map(String::as_str).collect();
     let title = format!("hierax cohort report: {}", args.data.display());

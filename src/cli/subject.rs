@@ -2,6 +2,7 @@
 
 use anyhow::Context;
 use clap::Args;
+use hierax::cohort::run::SharedInputs;
 use hierax::cohort::subject::{
     run_subject, MapNullMethod, NullModel, SubjectConfig, SubjectInputs, SubjectReport,
 };
@@ -151,6 +152,55 @@ impl JobOptions {
     }
 }
 
+/// Inputs and settings shared by every subject of a study: the atlas files
+/// and the acquisition. Used by `subject` and `cohort`.
+#[derive(Debug, Clone, Args)]
+pub struct StudyArgs {
+    /// Hierarchy map, one value per region, PATH[:KEY].
+    #[arg(long, value_name = "SPEC")]
+    pub map: String,
+
+    /// Repetition time in seconds.
+    #[arg(long, value_name = "SECONDS")]
+    pub tr: f64,
+
+    /// Region distances (n x n) for geometry-preserving network nulls or variogram map nulls.
+    #[arg(long, value_name = "SPEC")]
+    pub distances: Option<String>,
+
+    /// Parcel coordinates on a sphere (n x 3) for spin nulls, e.g. regions.tsv:sphere_x,sphere_y,sphere_z.
+    #[arg(long, value_name = "SPEC")]
+    pub sphere: Option<String>,
+
+    /// Hemisphere per parcel (L/R or 0/1), e.g. regions.tsv:hemisphere.
+    #[arg(long, value_name = "SPEC")]
+    pub hemisphere: Option<String>,
+
+    /// The connectomes are directed.
+    #[arg(long)]
+    pub directed: bool,
+}
+
+impl StudyArgs {
+    /// The parsed shared inputs.
+    pub fn shared(&self) -> anyhow::Result<SharedInputs> {
+        let spec = |s: &Option<String>| -> anyhow::Result<Option<InputSpec>> {
+            s.as_deref().map(InputSpec::parse).transpose().map_err(Into::into)
+        };
+        Ok(SharedInputs {
+            map: InputSpec::parse(&self.map)?,
+            distances: spec(&self.distances)?,
+            sphere: spec(&self.sphere)?,
+            hemisphere: spec(&self.hemisphere)?,
+        })
+    }
+
+    /// The per-subject configuration from these settings and the job options.
+    pub fn config(&self, job: &JobOptions) -> SubjectConfig {
+        job.config(self.tr, self.directed)
+    }
+}
+
 /// Run the whole per-subject job: timescales, states along the hierarchy,
 /// control energies of every state pair, asymmetry summaries and null
 /// models. Writes OUT/SUBJECT/ with one HDF5 file, CSV tables and a JSON
@@ -178,33 +228,12 @@ pub struct SubjectArgs {
     #[arg(long, value_name = "SPEC")]
     series: String,
 
-    /// Hierarchy map, one value per region, PATH[:KEY].
-    #[arg(long, value_name = "SPEC")]
-    map: String,
-
-    /// Repetition time in seconds.
-    #[arg(long, value_name = "SECONDS")]
-    tr: f64,
-
     /// Confounds table with framewise_displacement (BIDS confounds TSV).
     #[arg(long, value_name = "SPEC")]
     confounds: Option<String>,
 
-    /// Region distances (n x n) for geometry-preserving nulls.
-    #[arg(long, value_name = "SPEC")]
-    distances: Option<String>,
-
-    /// Parcel coordinates on a sphere (n x 3) for spin nulls, e.g. regions.tsv:sphere_x,sphere_y,sphere_z.
-    #[arg(long, value_name = "SPEC")]
-    sphere: Option<String>,
-
-    /// Hemisphere per parcel (L/R or 0/1), e.g. regions.tsv:hemisphere.
-    #[arg(long, value_name = "SPEC")]
-    hemisphere: Option<String>,
-
-    /// The connectome is directed.
-    #[arg(long)]
-    directed: bool,
+    #[command(flatten)]
+    study: StudyArgs,
 
     #[command(flatten)]
     job: JobOptions,
@@ -212,10 +241,6 @@ pub struct SubjectArgs {
     /// Output folder (the subject's folder is created inside).
     #[arg(long, default_value = "hierax-output")]
     out: PathBuf,
-}
-
-fn spec(s: &Option<String>) -> anyhow::Result<Option<InputSpec>> {
-    s.as_deref().map(InputSpec::parse).transpose().map_err(Into::into)
 }
 
 /// One screen of text about a subject's results.
@@ -258,18 +283,19 @@ pub fn print_summary(r: &SubjectReport) {
 }
 
 pub fn run(args: SubjectArgs) -> anyhow::Result<ExitCode> {
+    let shared = args.study.shared()?;
     let inputs = SubjectInputs {
         subject: args.subject.clone(),
         connectome: InputSpec::parse(&args.connectome)?,
         series: InputSpec::parse(&args.series)?,
-        map: InputSpec::parse(&args.map)?,
-        confounds: spec(&args.confounds)?,
-        distances: spec(&args.distances)?,
-        sphere: spec(&args.sphere)?,
-        hemisphere: spec(&args.hemisphere)?,
+        map: shared.map,
+        confounds: args.confounds.as_deref().map(InputSpec::parse).transpose()?,
+        distances: shared.distances,
+        sphere: shared.sphere,
+        hemisphere: shared.hemisphere,
         covariates: BTreeMap::new(),
     };
-    let cfg = args.job.config(args.tr, args.directed);
+    let cfg = args.study.config(&args.job);
     let report = run_subject(&inputs, &cfg, &args.out).with_context(|| args.subject.clone())?;
     print_summary(&report);
     println!("Research software: results are not for clinical decisions.");

@@ -159,17 +159,37 @@ pub fn degree_preserving<R: Rng + ?Sized>(
     swaps_per_edge: usize,
     rng: &mut R,
 ) -> Result<(Array2<f64>, RewireInfo), StatsError> {
+    let (edges, attempted, accepted) = unconstrained_swaps(w, swaps_per_edge, rng)?;
+    Ok(finish(w, &edges, attempted, accepted, None))
+}
+
+/// Edges of `w` after unconstrained double-edge swaps, with the swap counts.
+fn unconstrained_swaps<R: Rng + ?Sized>(
+    w: &Array2<f64>,
+    swaps_per_edge: usize,
+    rng: &mut R,
+) -> Result<(Vec<Edge>, usize, usize), StatsError> {
     let mut edges = edges_of(w)?;
-    let n = w.nrows();
-    let (attempted, accepted) = swap_edges(n, &mut edges, swaps_per_edge, rng, |_, _| true);
-    let null = to_matrix(n, &edges);
+    let (attempted, accepted) = swap_edges(w.nrows(), &mut edges, swaps_per_edge, rng, |_, _| true);
+    Ok((edges, attempted, accepted))
+}
+
+/// The null matrix of `edges` and its diagnostics against the original `w`.
+fn finish(
+    w: &Array2<f64>,
+    edges: &[Edge],
+    attempted: usize,
+    accepted: usize,
+    ks: Option<f64>,
+) -> (Array2<f64>, RewireInfo) {
+    let null = to_matrix(w.nrows(), edges);
     let info = RewireInfo {
         attempted,
         accepted,
         strength_error: strength_error(&strengths(w), &strengths(&null)),
-        length_ks_distance: None,
+        length_ks_distance: ks,
     };
-    Ok((null, info))
+    (null, info)
 }
 
 /// Degree-preserving swaps, then weights reassigned to keep strengths (see
@@ -182,9 +202,7 @@ pub fn strength_preserving<R: Rng + ?Sized>(
     swaps_per_edge: usize,
     rng: &mut R,
 ) -> Result<(Array2<f64>, RewireInfo), StatsError> {
-    let mut edges = edges_of(w)?;
-    let n = w.nrows();
-    let (attempted, accepted) = swap_edges(n, &mut edges, swaps_per_edge, rng, |_, _| true);
+    let (mut edges, attempted, accepted) = unconstrained_swaps(w, swaps_per_edge, rng)?;
     let target = strengths(w);
     let mut residual = target.clone();
     // Remaining weights, ascending.
@@ -204,14 +222,7 @@ pub fn strength_preserving<R: Rng + ?Sized>(
         residual[edges[e].b] -= wv;
         remaining.swap_remove(pick);
     }
-    let null = to_matrix(n, &edges);
-    let info = RewireInfo {
-        attempted,
-        accepted,
-        strength_error: strength_error(&target, &strengths(&null)),
-        length_ks_distance: None,
-    };
-    Ok((null, info))
+    Ok(finish(w, &edges, attempted, accepted, None))
 }
 
 /// Degree- and edge-length-preserving rewiring from a distance matrix (see
@@ -250,16 +261,9 @@ pub fn geometry_preserving<R: Rng + ?Sized>(
         bin_of(distance[[old[0].a, old[0].b]]) == bin_of(distance[[new[0].0, new[0].1]])
             && bin_of(distance[[old[1].a, old[1].b]]) == bin_of(distance[[new[1].0, new[1].1]])
     });
-    let null = to_matrix(n, &edges);
     let mut null_lengths: Vec<f64> = edges.iter().map(|e| distance[[e.a, e.b]]).collect();
     null_lengths.sort_by(f64::total_cmp);
-    let info = RewireInfo {
-        attempted,
-        accepted,
-        strength_error: strength_error(&strengths(w), &strengths(&null)),
-        length_ks_distance: Some(ks_distance_sorted(&lengths, &null_lengths)),
-    };
-    Ok((null, info))
+    Ok(finish(w, &edges, attempted, accepted, Some(ks_distance_sorted(&lengths, &null_lengths))))
 }
 
 /// Two-sample Kolmogorov–Smirnov statistic sup|F₁ − F₂| of two sorted samples.
