@@ -6,7 +6,7 @@
 //! The modules mirror the science and data flows one way through them:
 //!
 //! ```text
-//! io  ->  timescale / hierarchy / control  ->  link  ->  stats  ->  cohort  ->  report
+//! io  ->  timescale / hierarchy / control  ->  link  ->  stats  ->  subject  ->  export  ->  cohort  ->  report
 //! ```
 //!
 //! * [`io`]: readers for the field's file formats behind one `PATH[:KEY]`
@@ -18,7 +18,13 @@
 //! * [`link`]: pair tables of state transitions, energy asymmetries,
 //!   hierarchical distance and timescale shifts, per-subject summaries.
 //! * [`stats`]: correlations, permutation p-values, FDR, network nulls.
-//! * [`cohort`]: participant lists and runs over many subjects.
+//! * [`subject`]: the per-subject job as a pipeline of stages returning one
+//!   typed result ([`subject::analyse_subject`]).
+//! * [`export`]: every output file, column and dataset name, defined once;
+//!   output folders hierax owns; the data dictionary.
+//! * [`cohort`]: participant lists, runs over many subjects, cohort tests and
+//!   models.
+//! * [`param`]: the one shape of a rejected parameter.
 //! * [`report`]: HTML reports with SVG figures.
 //!
 //! This is research software. Its results are not for clinical decisions.
@@ -27,11 +33,14 @@
 
 pub mod cohort;
 pub mod control;
+pub mod export;
 pub mod hierarchy;
 pub mod io;
 pub mod link;
+pub mod param;
 pub mod report;
 pub mod stats;
+pub mod subject;
 pub mod timescale;
 
 /// The hierax version written into every output file.

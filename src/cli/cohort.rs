@@ -1,13 +1,11 @@
 //! `hierax cohort`: the whole job over a cohort of your own, and the
 //! machinery `hierax demo` shares with it.
 
-use super::subject::{JobOptions, StudyArgs};
+use super::subject::{with_flag_names, JobOptions, StudyArgs};
 use clap::Args;
-use hierax::cohort::model::{fit_outcome, group_tests, OUTCOMES};
-use hierax::cohort::run::{run_cohort, SharedInputs};
-use hierax::cohort::subject::SubjectConfig;
-use hierax::cohort::{Manifest, Patterns};
-use hierax::io::table::write_json;
+use hierax::cohort::{analyse_cohort, run_cohort, write_cohort, Manifest, Patterns, SharedInputs};
+use hierax::export::folder::{claim_root, Marker};
+use hierax::subject::SubjectConfig;
 use indicatif::{ProgressBar, ProgressStyle};
 use std::path::{Path, PathBuf};
 use std::process::ExitCode;
@@ -81,6 +79,8 @@ pub fn run(args: CohortArgs) -> anyhow::Result<ExitCode> {
             title: &title,
             intro: "Results of hierax over the participants listed below.",
             quiet: args.quiet,
+            command: "cohort",
+            inputs: vec![args.data.clone()],
         },
     )
 }
@@ -93,6 +93,65 @@ pub struct Reporting<'a> {
     pub intro: &'a str,
     /// Hide the progress bar.
     pub quiet: bool,
+    /// The command, for provenance.
+    pub command: &'a str,
+    /// Input folders the output folder must stay apart from.
+    pub inputs: Vec<PathBuf>,
+}
+
+/// `path` made absolute without requiring it to exist: the longest existing
+/// ancestor is canonicalised and the rest appended.
+fn absolute(path: &Path) -> PathBuf {
+    let mut existing = path.to_path_buf();
+    let mut rest = Vec::new();
+    while !existing.exists() {
+        match (existing.file_name(), existing.parent()) {
+            (Some(name), Some(parent)) => {
+                rest.push(name.to_os_string());
+                existing =
+                    if parent.as_os_str().is_empty() { PathBuf::from(".") } else { parent.to_path_buf() };
+            }
+            _ => break,
+        }
+    }
+    let mut p = std::fs::canonicalize(&existing).unwrap_or(existing);
+    for r in rest.iter().rev() {
+        p.push(r);
+    }
+    p
+}
+
+/// Check that `out` may receive outputs: it may not be, or contain, the
+/// folder of any input, and it must be new, empty, or a folder hierax made.
+/// Nothing is written.
+pub fn check_out(out: &Path, inputs: &[PathBuf]) -> anyhow::Result<()> {
+    let out_abs = absolute(out);
+    for input in inputs {
+        let folder = if input.is_dir() {
+            input.clone()
+        } else {
+            input.parent().map(Path::to_path_buf).unwrap_or_default()
+        };
+        let folder = absolute(&folder);
+        if folder.starts_with(&out_abs) {
+            anyhow::bail!(
+                "--out {}: the output folder contains the input folder {}; choose an output folder apart from the inputs",
+                out.display(),
+                folder.display()
+            );
+        }
+    }
+    if out.is_dir() && std::fs::read_dir(out).map(|mut d| d.next().is_some()).unwrap_or(false) {
+        hierax::export::folder::check_replaceable(out)?;
+    }
+    Ok(())
+}
+
+/// [`check_out`], then create `out` with hierax's marker.
+pub fn prepare_out(out: &Path, inputs: &[PathBuf]) -> anyhow::Result<()> {
+    check_out(out, inputs)?;
+    claim_root(out, &Marker::new("results", &serde_json::json!({}), &[]))?;
+    Ok(())
 }
 
 /// Run every subject, then write the cohort files and the report; print a summary.
@@ -104,14 +163,16 @@ pub fn run_and_report(
     covariates: &[&str],
     rep: &Reporting<'_>,
 ) -> anyhow::Result<ExitCode> {
+    let cfg = cfg.check().map_err(with_flag_names)?;
+    prepare_out(out, &rep.inputs)?;
     let bar =
         if rep.quiet { ProgressBar::hidden() } else { ProgressBar::new(manifest.participants.len() as u64) };
     bar.set_style(
         ProgressStyle::with_template("  {bar:30} {pos}/{len} subjects {elapsed}")
             .unwrap_or(ProgressStyle::default_bar()),
     );
-    let run = run_cohort(manifest, shared, cfg, out, &|o| {
-        if let Err(e) = &o.result {
+    let run = run_cohort(manifest, shared, &cfg, out, rep.command, &|s| {
+        if let Some(e) = &s.error {
             // A hidden bar drops its lines, so print directly when quiet.
             if rep.quiet {
                 eprintln!("hierax: error: {e}");
@@ -122,45 +183,35 @@ pub fn run_and_report(
         bar.inc(1);
     })?;
     bar.finish_and_clear();
+    let analysis = analyse_cohort(&run, &cfg, covariates)?;
+    write_cohort(out, &run, &cfg, &analysis, rep.title, rep.intro)?;
 
-    let models: Vec<(String, Result<_, String>)> = OUTCOMES
-        .iter()
-        .map(|(name, f)| (name.to_string(), fit_outcome(&run, *f, covariates).map_err(|e| e.to_string())))
-        .collect();
-    let groups = group_tests(&run, 9999, cfg.seed).map_err(|e| anyhow::anyhow!("cohort tests: {e}"))?;
-    run.cohort_table().write_csv(&out.join("cohort.csv"))?;
-    run.log_table().write_csv(&out.join("run_log.csv"))?;
-    model_table(&models).write_csv(&out.join("age_models.csv"))?;
-    {
-        use hierax::io::table::{Column, Table};
-        Table::new()
-            .with("outcome", Column::Str(groups.iter().map(|g| g.outcome.clone()).collect()))
-            .with("n", Column::I64(groups.iter().map(|g| g.n as i64).collect()))
-            .with("mean", Column::F64(groups.iter().map(|g| g.mean).collect()))
-            .with("p_value", Column::F64(groups.iter().map(|g| g.p_value).collect()))
-            .with("sign_flips", Column::I64(groups.iter().map(|g| g.permutations as i64).collect()))
-            .write_csv(&out.join("group_tests.csv"))?;
+    println!("  subjects      {} succeeded, {} failed", run.records().len(), run.n_failed());
+    for (o, role) in &analysis.roles {
+        if !role.is_finding() {
+            println!("  outcome       {} {} (not tested or modelled)", o.name(), role.describe());
+        }
     }
-    write_json(
-        &out.join("cohort.json"),
-        &serde_json::json!({ "config": cfg, "group_tests": groups, "models": models, "run": run }),
-    )?;
-    let html = hierax::report::cohort::cohort_report(rep.title, rep.intro, &run, &groups, &models);
-    hierax::io::atomic::write_bytes_atomic(&out.join("report.html"), html.as_bytes())?;
-
-    println!("  subjects      {} succeeded, {} failed", run.reports().len(), run.n_failed());
-    for g in &groups {
+    for g in &analysis.tests {
         println!(
-            "  cohort test   {} = {:+.4} on average (sign-flip p {:.4}, n {})",
-            g.outcome, g.mean, g.p_value, g.n
+            "  cohort test   {} = {:+.4} on average (sign-flip p {:.4}, FDR {:.4}, n {})",
+            g.outcome.name(),
+            g.mean,
+            g.p_value,
+            g.p_fdr,
+            g.n
         );
     }
-    for (name, fit) in &models {
-        if let Ok(f) = fit {
+    for m in &analysis.models {
+        if let Ok(f) = &m.fit {
             if let Some(j) = f.terms.iter().position(|t| t == "age") {
                 println!(
-                    "  age model     {name}: {:+.4} per year (SE {:.4}, p {:.2e}, n {})",
-                    f.coef[j], f.se[j], f.p_value[j], f.n
+                    "  age model     {}: {:+.4} per year (SE {:.4}, p {:.2e}, n {})",
+                    m.outcome.name(),
+                    f.coef[j],
+                    f.se[j],
+                    f.p_value[j],
+                    f.n
                 );
             }
         }
@@ -168,34 +219,4 @@ pub fn run_and_report(
     println!("  written to    {} (open report.html)", out.display());
     println!("Research software: results are not for clinical decisions.");
     Ok(if run.n_failed() == 0 { ExitCode::SUCCESS } else { ExitCode::from(1) })
-}
-
-fn model_table(
-    models: &[(String, Result<hierax::stats::regression::OlsFit, String>)],
-) -> hierax::io::table::Table {
-    use hierax::io::table::{Column, Table};
-    let mut outcome = Vec::new();
-    let mut term = Vec::new();
-    let (mut est, mut se, mut t, mut p, mut n) = (Vec::new(), Vec::new(), Vec::new(), Vec::new(), Vec::new());
-    for (name, fit) in models {
-        if let Ok(f) = fit {
-            for j in 0..f.terms.len() {
-                outcome.push(name.clone());
-                term.push(f.terms[j].clone());
-                est.push(f.coef[j]);
-                se.push(f.se[j]);
-                t.push(f.t[j]);
-                p.push(f.p_value[j]);
-                n.push(f.n as i64);
-            }
-        }
-    }
-    Table::new()
-        .with("outcome", Column::Str(outcome))
-        .with("term", Column::Str(term))
-        .with("estimate", Column::F64(est))
-        .with("se", Column::F64(se))
-        .with("t", Column::F64(t))
-        .with("p_value", Column::F64(p))
-        .with("n", Column::I64(n))
 }

@@ -3,10 +3,9 @@
 use super::cohort::{run_and_report, Reporting};
 use anyhow::{bail, Context};
 use clap::Args;
-use hierax::cohort::run::SharedInputs;
-use hierax::cohort::subject::SubjectConfig;
-use hierax::cohort::{Manifest, Patterns};
+use hierax::cohort::{Manifest, Patterns, SharedInputs};
 use hierax::io::InputSpec;
+use hierax::subject::SubjectConfig;
 use std::path::PathBuf;
 use std::process::ExitCode;
 
@@ -87,6 +86,8 @@ pub fn run(args: DemoArgs) -> anyhow::Result<ExitCode> {
             intro: "Every participant, connectome, series and map in this report is invented by examples/make_demo.rs \
                     for demonstration; nothing here describes real people.",
             quiet: args.quiet,
+            command: "demo",
+            inputs: vec![args.data.clone()],
         },
     )?;
     println!("The demo data are invented.");

@@ -1,15 +1,13 @@
 //! `hierax subject`: the whole per-subject job.
 
-use anyhow::Context;
 use clap::Args;
-use hierax::cohort::run::SharedInputs;
-use hierax::cohort::subject::{
-    run_subject, MapNullMethod, NullModel, SubjectConfig, SubjectInputs, SubjectReport,
-};
+use hierax::cohort::SharedInputs;
 use hierax::control::{SystemParams, TimeModel};
+use hierax::hierarchy::SurrogateMethod;
 use hierax::io::InputSpec;
+use hierax::subject::{NullModel, SubjectConfig, SubjectError, SubjectInputs, SubjectResult};
 use std::collections::BTreeMap;
-use std::path::PathBuf;
+use std::path::{Path, PathBuf};
 use std::process::ExitCode;
 
 /// Command-line spelling of [`NullModel`].
@@ -21,15 +19,6 @@ pub enum NullModelArg {
     Strength,
     /// Swaps that keep each edge's length bin (after Betzel & Bassett 2018); needs --distances.
     Geometry,
-}
-
-/// Command-line spelling of [`MapNullMethod`].
-#[derive(Clone, Copy, Debug, clap::ValueEnum)]
-pub enum MapNullArg {
-    /// Spin permutations on the sphere (Alexander-Bloch et al. 2018).
-    Spin,
-    /// Variogram-matched surrogates (Burt et al. 2020).
-    Variogram,
 }
 
 /// Command-line spelling of [`TimeModel`].
@@ -110,9 +99,13 @@ pub struct JobOptions {
     #[arg(long, default_value_t = 0, value_name = "M")]
     pub map_nulls: usize,
 
-    /// How surrogate maps are made: spin (needs --sphere) or variogram (needs --distances).
+    /// How surrogate maps are made: spin (needs --sphere), variogram or moran (need --distances).
     #[arg(long, value_enum, default_value = "spin")]
-    pub map_null_method: MapNullArg,
+    pub map_null_method: SurrogateMethod,
+
+    /// False discovery rate at which the subject's family of null tests is read.
+    #[arg(long, default_value_t = 0.05, value_name = "ALPHA")]
+    pub fdr_alpha: f64,
 
     /// Seed of every random draw.
     #[arg(long, default_value_t = 0)]
@@ -143,10 +136,8 @@ impl JobOptions {
             NullModelArg::Geometry => NullModel::Geometry,
         };
         c.map_nulls = self.map_nulls;
-        c.map_null_method = match self.map_null_method {
-            MapNullArg::Spin => MapNullMethod::Spin,
-            MapNullArg::Variogram => MapNullMethod::Variogram,
-        };
+        c.map_null_method = self.map_null_method;
+        c.fdr_alpha = self.fdr_alpha;
         c.seed = self.seed;
         c
     }
@@ -216,9 +207,10 @@ impl StudyArgs {
     --hemisphere demo-data/atlas/regions.tsv:hemisphere \\\n    \
     --network-nulls 100 --map-nulls 100 --out results")]
 pub struct SubjectArgs {
-    /// Subject name for the output folder and files.
-    #[arg(long, default_value = "sub-01")]
-    subject: String,
+    /// Subject, sub-<label> with an alphanumeric label (BIDS). Default: the sub- entity of the
+    /// connectome's or series' file name; required when they carry none.
+    #[arg(long, value_name = "SUB")]
+    subject: Option<String>,
 
     /// Structural connectome, PATH[:KEY].
     #[arg(long, value_name = "SPEC")]
@@ -244,50 +236,110 @@ pub struct SubjectArgs {
 }
 
 /// One screen of text about a subject's results.
-pub fn print_summary(r: &SubjectReport) {
-    let s = &r.summary;
-    println!("{}: {} regions, {} of {} frames kept", r.subject, r.n_regions, r.n_valid_frames, r.n_frames);
+pub fn print_summary(r: &SubjectResult, written: &Path) {
+    use hierax::subject::Outcome;
+    let s = &r.link.summary;
+    println!(
+        "{}: {} regions, {} of {} frames kept",
+        r.subject,
+        r.names.len(),
+        r.n_valid_frames(),
+        r.n_frames
+    );
     println!(
         "  energy        bottom-up mean {:.4}, top-down mean {:.4}, difference {:+.4}",
         s.mean_bottom_up_energy, s.mean_top_down_energy, s.bottom_up_minus_top_down
     );
+    let d = &s.asymmetry_decomposition;
     println!(
-        "  asymmetry     slope vs distance {:+.4} per bin (Spearman {:+.3}, p {:.2e})",
-        s.asymmetry_vs_distance_line.slope,
-        s.asymmetry_vs_distance_spearman.r,
-        s.asymmetry_vs_distance_spearman.p_value
+        "  asymmetry     potential share {:.4}, potential vs hierarchy Spearman {}",
+        d.potential_share,
+        d.potential_vs_position_spearman.as_ref().map_or("n/a".into(), |c| format!("{:+.3}", c.r))
     );
-    if let Some(c) = &s.asymmetry_vs_timescale_shift_spearman {
-        println!(
-            "  timescales    asymmetry vs target-minus-initial timescale: Spearman {:+.3} (p {:.2e})",
-            c.r, c.p_value
-        );
+    for (o, role) in r.config.outcome_roles() {
+        let v = r.outcome(o);
+        if o == Outcome::BottomUpMinusTopDown {
+            continue;
+        }
+        let tag = if role.is_finding() { String::new() } else { format!("  [{}]", role.describe()) };
+        println!("  outcome       {} = {v:+.4}{tag}", o.name());
     }
-    if let Some(r) = r.timescale_vs_hierarchy_spearman {
-        println!("                timescale vs hierarchy map: Spearman {r:+.3}");
-    }
+    let info = &r.control.info;
     println!(
         "  numerics      Gramian condition {:.3e}, max terminal error {:.2e}",
-        r.gramian_condition, r.terminal_error_max
+        info.gramian_condition, info.terminal_error_max
     );
     for t in &r.tests {
         println!(
-            "  null test     {}: observed {:+.4}, null mean {:+.4}, p {:.4} (FDR {:.4}, {} nulls)",
-            t.name, t.observed, t.null_mean, t.p_value, t.p_fdr, t.n_null
+            "  null test     {} ({}): observed {:+.4}, null mean {:+.4} (SD {:.3e}), p {:.4} (FDR {:.4}, {} nulls)",
+            t.key(),
+            t.method,
+            t.observed,
+            t.null_mean,
+            t.null_sd,
+            t.p_value,
+            t.p_fdr,
+            t.n_null
         );
     }
     for n in &r.notes {
         println!("  note          {n}");
     }
-    println!("  written to    {}", r.output.display());
+    println!("  written to    {}", written.display());
+}
+
+/// The subject of a run: `--subject`, or the `sub-` entity of the inputs' file names.
+fn subject_label(given: Option<&str>, inputs: &[&InputSpec]) -> anyhow::Result<String> {
+    if let Some(s) = given {
+        hierax::subject::check_entity("sub", s)?;
+        return Ok(s.to_string());
+    }
+    for spec in inputs {
+        let name = spec.path.file_name().map(|n| n.to_string_lossy().into_owned()).unwrap_or_default();
+        if let Some(entity) = name.split('_').next().filter(|e| e.starts_with("sub-")) {
+            let entity = entity.split('.').next().unwrap_or(entity);
+            if hierax::subject::check_entity("sub", entity).is_ok() {
+                return Ok(entity.to_string());
+            }
+        }
+    }
+    anyhow::bail!(
+        "--subject: the input file names carry no sub-<label> entity; name the subject with --subject sub-<label>"
+    )
+}
+
+/// A library error with parameter names spelled as this command's flags.
+pub fn with_flag_names(e: SubjectError) -> anyhow::Error {
+    match e {
+        SubjectError::Param(p) => anyhow::anyhow!("{} {}: expected {}", flag_of(p.name), p.value, p.expected),
+        SubjectError::MissingInput { input, needed_by } => {
+            anyhow::anyhow!("{needed_by} need {}; none was given", flag_of(input))
+        }
+        other => other.into(),
+    }
+}
+
+/// The flag that sets a library parameter.
+pub fn flag_of(name: &str) -> String {
+    let flag = match name {
+        "tr_s" => "tr",
+        "fd_threshold_mm" => "fd-threshold",
+        "timescale_column" => "timescale",
+        "detrend_order" => "detrend",
+        other => return format!("--{}", other.replace('_', "-")),
+    };
+    format!("--{flag}")
 }
 
 pub fn run(args: SubjectArgs) -> anyhow::Result<ExitCode> {
     let shared = args.study.shared()?;
+    let connectome = InputSpec::parse(&args.connectome)?;
+    let series = InputSpec::parse(&args.series)?;
+    let subject = subject_label(args.subject.as_deref(), &[&connectome, &series])?;
     let inputs = SubjectInputs {
-        subject: args.subject.clone(),
-        connectome: InputSpec::parse(&args.connectome)?,
-        series: InputSpec::parse(&args.series)?,
+        subject,
+        connectome,
+        series,
         map: shared.map,
         confounds: args.confounds.as_deref().map(InputSpec::parse).transpose()?,
         distances: shared.distances,
@@ -295,9 +347,31 @@ pub fn run(args: SubjectArgs) -> anyhow::Result<ExitCode> {
         hemisphere: shared.hemisphere,
         covariates: BTreeMap::new(),
     };
-    let cfg = args.study.config(&args.job);
-    let report = run_subject(&inputs, &cfg, &args.out).with_context(|| args.subject.clone())?;
-    print_summary(&report);
+    let cfg = args.study.config(&args.job).check().map_err(with_flag_names)?;
+    super::cohort::check_out(&args.out, &inputs_paths(&inputs))?;
+    let loaded = hierax::subject::LoadedSubject::load(&inputs, &cfg).map_err(with_flag_names)?;
+    let result = hierax::subject::analyse_subject(&loaded, &cfg, hierax::control::Par::rayon(0))
+        .map_err(with_flag_names)?;
+    super::cohort::prepare_out(&args.out, &inputs_paths(&inputs))?;
+    let written = hierax::export::subject::write_subject(&result, &args.out, "subject")?;
+    print_summary(&result, &written);
     println!("Research software: results are not for clinical decisions.");
     Ok(ExitCode::SUCCESS)
+}
+
+/// Every input file of a subject (for the output-folder checks).
+pub fn inputs_paths(i: &SubjectInputs) -> Vec<PathBuf> {
+    [
+        Some(&i.connectome),
+        Some(&i.series),
+        Some(&i.map),
+        i.confounds.as_ref(),
+        i.distances.as_ref(),
+        i.sphere.as_ref(),
+        i.hemisphere.as_ref(),
+    ]
+    .into_iter()
+    .flatten()
+    .map(|s| s.path.clone())
+    .collect()
 }

@@ -1,13 +1,14 @@
 //! Errors of the `cohort` module.
 
 use crate::io::IoError;
+use crate::stats::StatsError;
 use std::path::PathBuf;
 
 /// An error building or running a cohort.
 #[derive(Debug, thiserror::Error)]
 #[non_exhaustive]
 pub enum CohortError {
-    /// A file could not be read or is malformed.
+    /// A file could not be read or written, or is malformed.
     #[error(transparent)]
     Io(#[from] IoError),
     /// The participants table lacks a required column.
@@ -30,14 +31,6 @@ pub enum CohortError {
         /// The pattern.
         pattern: String,
     },
-    /// A step of the per-subject job failed; the message names the input.
-    #[error("{step}: {message}")]
-    Step {
-        /// The step ("timescales", "control", ...).
-        step: String,
-        /// What failed, naming the file where one is at fault.
-        message: String,
-    },
     /// A value in the participants table is malformed.
     #[error("{path}: line {line}: {reason}")]
     BadRow {
@@ -47,5 +40,14 @@ pub enum CohortError {
         line: usize,
         /// What was wrong.
         reason: String,
+    },
+    /// A cohort-level statistic failed.
+    #[error("{what}: {source}")]
+    Stats {
+        /// Which.
+        what: &'static str,
+        /// The cause.
+        #[source]
+        source: StatsError,
     },
 }

@@ -1,6 +1,7 @@
-//! Cohorts: which participants there are, where their files live, and running
-//! the per-subject job over all of them. This module only orchestrates; every
-//! computation lives in the science modules it calls.
+//! Cohorts: which participants there are, where their files live, running
+//! the per-subject job over all of them, and the cohort-level tests and
+//! models. This module only orchestrates; every computation lives in the
+//! science modules it calls, and every file is written by `export`.
 //!
 //! A cohort is described by a BIDS-style `participants.tsv` (column
 //! `participant_id` = `sub-<label>`, plus covariates such as `age` and `sex`)
@@ -12,7 +13,82 @@ mod error;
 pub mod manifest;
 pub mod model;
 pub mod run;
-pub mod subject;
 
 pub use error::CohortError;
 pub use manifest::{Manifest, Participant, Patterns};
+pub use run::{run_cohort, CohortRun, SharedInputs};
+
+use crate::export::cohort::{GroupTest, OutcomeModel};
+use crate::subject::{Outcome, OutcomeRole, ValidSubjectConfig};
+use std::path::Path;
+
+/// Sign flips of the cohort tests against 0: 9,999 gives p-values down to
+/// 1e-4 (common practice, no source).
+pub const SIGN_FLIPS: usize = 9_999;
+
+/// The cohort-level results of a run.
+#[derive(Clone, Debug)]
+pub struct CohortAnalysis {
+    /// Each outcome's role under the run's settings.
+    pub roles: Vec<(Outcome, OutcomeRole)>,
+    /// Findings tested against 0 across subjects.
+    pub tests: Vec<GroupTest>,
+    /// Findings regressed on the covariates.
+    pub models: Vec<OutcomeModel>,
+}
+
+/// Test and model every finding across the subjects of `run`.
+///
+/// # Errors
+/// [`CohortError::Stats`] when the FDR step fails.
+pub fn analyse_cohort(
+    run: &CohortRun,
+    cfg: &ValidSubjectConfig,
+    covariates: &[&str],
+) -> Result<CohortAnalysis, CohortError> {
+    let roles = cfg.outcome_roles();
+    let findings = model::findings(&roles);
+    let records = run.records();
+    let tests = model::group_tests(&records, &findings, SIGN_FLIPS, cfg.params().seed)
+        .map_err(|source| CohortError::Stats { what: "cohort tests", source })?;
+    let models = model::fit_models(&records, &findings, covariates);
+    Ok(CohortAnalysis { roles, tests, models })
+}
+
+/// Write the cohort files (`cohort.csv`, `run_log.csv`, `group_tests.csv`,
+/// `age_models.csv`, `cohort.json`) and `report.html` into `out`.
+///
+/// # Errors
+/// [`CohortError::Io`] when a file cannot be written.
+pub fn write_cohort(
+    out: &Path,
+    run: &CohortRun,
+    cfg: &ValidSubjectConfig,
+    analysis: &CohortAnalysis,
+    title: &str,
+    intro: &str,
+) -> Result<(), CohortError> {
+    let params = serde_json::to_value(cfg.params()).unwrap_or_default();
+    crate::export::cohort::write_cohort_files(
+        out,
+        &params,
+        &analysis.roles,
+        &run.subjects,
+        &analysis.tests,
+        &analysis.models,
+    )?;
+    let example = run.records().first().and_then(|r| {
+        crate::export::subject::read_asymmetry(&r.output, &r.subject).ok().map(|m| (r.subject.clone(), m))
+    });
+    let html = crate::report::cohort::cohort_report(&crate::report::cohort::CohortReportInput {
+        title,
+        intro,
+        subjects: &run.subjects,
+        roles: &analysis.roles,
+        tests: &analysis.tests,
+        models: &analysis.models,
+        example,
+    });
+    crate::io::atomic::write_bytes_atomic(&out.join("report.html"), html.as_bytes())?;
+    Ok(())
+}

@@ -1,26 +1,18 @@
-//! Cohort-level models: a subject-level outcome regressed on covariates such
-//! as age, sex and head motion, by ordinary least squares.
+//! Cohort-level statistics over subject records: each outcome tested against
+//! 0 across subjects, and regressed on covariates such as age, sex and head
+//! motion by ordinary least squares. Only outcomes that are findings under
+//! the run's settings are tested and modelled (see
+//! [`crate::subject::outcomes`]).
 
-use super::run::CohortRun;
-use super::subject::SubjectReport;
+use crate::export::cohort::{GroupTest, OutcomeModel};
+use crate::stats::inference::{benjamini_hochberg, sign_flip_test, Alternative};
 use crate::stats::regression::{ols, OlsFit};
 use crate::stats::StatsError;
+use crate::subject::{Outcome, OutcomeRole, SubjectRecord};
 use ndarray::Array2;
+use rand::SeedableRng;
 
-/// A subject-level outcome picked from a [`SubjectReport`].
-pub type Outcome = fn(&SubjectReport) -> f64;
-
-/// The outcomes modelled by default, with their names.
-pub const OUTCOMES: [(&str, Outcome); 4] = [
-    ("bottom_up_minus_top_down", |r| r.summary.bottom_up_minus_top_down),
-    ("asymmetry_distance_slope", |r| r.summary.asymmetry_vs_distance_line.slope),
-    ("asymmetry_timescale_shift_spearman", |r| {
-        r.summary.asymmetry_vs_timescale_shift_spearman.map_or(f64::NAN, |c| c.r)
-    }),
-    ("timescale_hierarchy_spearman", |r| r.timescale_vs_hierarchy_spearman.unwrap_or(f64::NAN)),
-];
-
-/// Fit `outcome ~ 1 + covariates` over the successful subjects of `run`.
+/// Fit `outcome ~ 1 + covariates` over `records`.
 ///
 /// A covariate whose values all parse as numbers enters as one numeric term.
 /// Any other covariate (e.g. `sex`) is categorical: its alphabetically first
@@ -30,11 +22,14 @@ pub const OUTCOMES: [(&str, Outcome); 4] = [
 ///
 /// # Errors
 /// [`StatsError`] when too few subjects remain or the design is rank deficient.
-pub fn fit_outcome(run: &CohortRun, outcome: Outcome, covariates: &[&str]) -> Result<OlsFit, StatsError> {
-    let reps: Vec<&SubjectReport> = run
-        .reports()
-        .into_iter()
-        .filter(|r| outcome(r).is_finite())
+pub fn fit_outcome(
+    records: &[&SubjectRecord],
+    outcome: Outcome,
+    covariates: &[&str],
+) -> Result<OlsFit, StatsError> {
+    let reps: Vec<&&SubjectRecord> = records
+        .iter()
+        .filter(|r| r.outcome(outcome).is_finite())
         .filter(|r| {
             covariates
                 .iter()
@@ -63,50 +58,63 @@ pub fn fit_outcome(run: &CohortRun, outcome: Outcome, covariates: &[&str]) -> Re
         }
     }
     let x = Array2::from_shape_fn((reps.len(), columns.len()), |(i, j)| columns[j][i]);
-    let y: Vec<f64> = reps.iter().map(|r| outcome(r)).collect();
+    let y: Vec<f64> = reps.iter().map(|r| r.outcome(outcome)).collect();
     let terms: Vec<&str> = names.iter().map(String::as_str).collect();
     ols(&x, &y, &terms)
 }
 
-/// A cohort-level test of one subject-level outcome against 0.
-#[derive(Clone, Debug, PartialEq, serde::Serialize)]
-pub struct GroupTest {
-    /// The outcome.
-    pub outcome: String,
-    /// Subjects with a finite value.
-    pub n: usize,
-    /// Mean across subjects.
-    pub mean: f64,
-    /// Two-sided sign-flip permutation p-value.
-    pub p_value: f64,
-    /// Sign flips drawn.
-    pub permutations: usize,
+/// The outcomes that are findings under `roles`.
+pub fn findings(roles: &[(Outcome, OutcomeRole)]) -> Vec<Outcome> {
+    roles.iter().filter(|(_, r)| r.is_finding()).map(|(o, _)| *o).collect()
 }
 
-/// Test each of [`OUTCOMES`] against 0 across the cohort with a sign-flip
-/// permutation test ([`crate::stats::inference::sign_flip_test`]); for
-/// example, whether bottom-up transitions are cheaper than top-down ones
-/// across subjects. Seeded: the same seed gives the same p-values.
-///
-/// # Errors
-/// [`StatsError::TooFew`] when fewer than 2 subjects have a finite value.
-pub fn group_tests(run: &CohortRun, permutations: usize, seed: u64) -> Result<Vec<GroupTest>, StatsError> {
-    use rand::SeedableRng;
-    let reps = run.reports();
-    OUTCOMES
+/// Fit every finding's model; a failure is kept as its reason.
+pub fn fit_models(
+    records: &[&SubjectRecord],
+    outcomes: &[Outcome],
+    covariates: &[&str],
+) -> Vec<OutcomeModel> {
+    outcomes
         .iter()
-        .enumerate()
-        .map(|(i, (name, f))| {
-            let v: Vec<f64> = reps.iter().map(|r| f(r)).filter(|x| x.is_finite()).collect();
-            let mut rng = rand_chacha::ChaCha20Rng::seed_from_u64(seed);
-            rng.set_stream(i as u64);
-            let (mean, p) = crate::stats::inference::sign_flip_test(
-                &v,
-                permutations,
-                crate::stats::inference::Alternative::TwoSided,
-                &mut rng,
-            )?;
-            Ok(GroupTest { outcome: name.to_string(), n: v.len(), mean, p_value: p, permutations })
+        .map(|&o| OutcomeModel {
+            outcome: o,
+            fit: fit_outcome(records, o, covariates).map_err(|e| e.to_string()),
         })
         .collect()
+}
+
+/// Test each of `outcomes` against 0 across subjects with a sign-flip
+/// permutation test ([`sign_flip_test`]; Nichols & Holmes 2002), then
+/// Benjamini–Hochberg across the outcomes. Seeded: outcome `i` draws from
+/// ChaCha20 stream `i` of `seed`. An outcome with fewer than 2 finite values
+/// gets NaN.
+///
+/// # Errors
+/// [`StatsError`] from the FDR step only.
+pub fn group_tests(
+    records: &[&SubjectRecord],
+    outcomes: &[Outcome],
+    sign_flips: usize,
+    seed: u64,
+) -> Result<Vec<GroupTest>, StatsError> {
+    let mut tests: Vec<GroupTest> = outcomes
+        .iter()
+        .enumerate()
+        .map(|(i, &o)| {
+            let v: Vec<f64> = records.iter().map(|r| r.outcome(o)).filter(|x| x.is_finite()).collect();
+            let mut rng = rand_chacha::ChaCha20Rng::seed_from_u64(seed);
+            rng.set_stream(i as u64);
+            let (mean, p) = sign_flip_test(&v, sign_flips, Alternative::TwoSided, &mut rng)
+                .unwrap_or((f64::NAN, f64::NAN));
+            GroupTest { outcome: o, n: v.len(), mean, p_value: p, p_fdr: f64::NAN, sign_flips }
+        })
+        .collect();
+    let finite: Vec<usize> = (0..tests.len()).filter(|&i| tests[i].p_value.is_finite()).collect();
+    if !finite.is_empty() {
+        let adj = benjamini_hochberg(&finite.iter().map(|&i| tests[i].p_value).collect::<Vec<_>>())?;
+        for (&i, a) in finite.iter().zip(adj) {
+            tests[i].p_fdr = a;
+        }
+    }
+    Ok(tests)
 }

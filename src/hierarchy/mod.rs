@@ -43,6 +43,7 @@ pub mod moran;
 mod rng;
 pub mod spin;
 pub mod states;
+pub mod surrogates;
 pub mod variogram;
 
 pub use error::HierarchyError;
@@ -51,6 +52,7 @@ pub use linalg::pearson;
 pub use moran::{moran_surrogates, morans_i, MoranBasis, MoranMethod, MoranParams, MoranSurrogates};
 pub use spin::{spin_surrogates, SphereLayout, SpinParams, SpinSurrogates};
 pub use states::{build_states, Order, States, StatesParams};
+pub use surrogates::{surrogate_maps, SpatialInputs, SurrogateMethod};
 pub use variogram::{variogram_surrogates, VariogramModel, VariogramParams, VariogramSurrogates};
 
 /// Refuse a map whose values (ignoring NaN) are all equal: no ranking or

@@ -66,6 +66,22 @@ pub enum IoError {
         /// What was expected and what was found.
         expected: String,
     },
+    /// A BIDS entity whose label is not alphanumeric.
+    #[error("`{value}`: expected {prefix}-<label> with a label of ASCII letters or digits only (the BIDS label rule)")]
+    BadLabel {
+        /// The value given.
+        value: String,
+        /// The entity (`sub`, `ses`).
+        prefix: &'static str,
+    },
+    /// An output folder is not hierax's to replace.
+    #[error("{path}: {reason}")]
+    NotOurs {
+        /// The folder.
+        path: PathBuf,
+        /// Why it is refused and what to do.
+        reason: String,
+    },
 }
 
 impl IoError {

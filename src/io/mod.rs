@@ -295,6 +295,13 @@ impl LoadedArray {
     }
 }
 
+/// Region names when no input names them: `region-001`, `region-002`, …
+/// (three digits at least, so they sort in order). The one default used by
+/// every command and table.
+pub fn default_region_names(n: usize) -> Vec<String> {
+    (1..=n).map(|i| format!("region-{i:03}")).collect()
+}
+
 /// Read the array named by `spec`, dispatching on its extension.
 ///
 /// # Errors

@@ -50,6 +50,16 @@ pub enum LinkError {
         /// Number of regions.
         n: usize,
     },
+    /// An asymmetry matrix is not antisymmetric.
+    #[error("asymmetry matrix: expected Δ[i, j] = −Δ[j, i], found a sum of {sum} for states {initial} and {target}")]
+    NotAntisymmetric {
+        /// First state.
+        initial: usize,
+        /// Second state.
+        target: usize,
+        /// Δ[i, j] + Δ[j, i].
+        sum: f64,
+    },
     /// A statistic could not be computed.
     #[error("{what}: {source}")]
     Stats {

@@ -14,9 +14,17 @@
 //! Per-subject summaries use the k(k − 1)/2 bottom-up pairs (i < j) once each,
 //! because ΔE and Δτ are antisymmetric and the top-down pairs repeat them with
 //! the sign flipped.
+//!
+//! The asymmetry matrix is also split into a per-state potential and a
+//! circulation ([`decomposition`]; Jiang, Lim, Yao & Ye 2011). Where the
+//! asymmetry is a pure potential (a symmetric network with every node driven
+//! equally), the slope of ΔE on distance is exactly 3/(k + 1) times the
+//! bottom-up minus top-down energy, so the two are one finding.
 
+pub mod decomposition;
 mod error;
 pub mod pairs;
 
+pub use decomposition::{decompose_asymmetry, slope_per_mean_for_potential, AsymmetryDecomposition};
 pub use error::LinkError;
 pub use pairs::{bin_means, pair_table, summarise, Direction, PairRow, PairTable, SubjectSummary};

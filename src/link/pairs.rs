@@ -1,5 +1,6 @@
 //! The pair table of a subject and its summaries.
 
+use super::decomposition::{decompose_asymmetry, AsymmetryDecomposition};
 use super::LinkError;
 use crate::io::table::{Column, Table};
 use crate::stats::correlation::{pearson, spearman, Correlation};
@@ -137,6 +138,12 @@ impl PairTable {
         self.rows.iter().filter(|r| r.direction == Direction::BottomUp)
     }
 
+    /// The k × k asymmetry matrix Δ_ij = E_ij − E_ji.
+    pub fn asymmetry_matrix(&self) -> Array2<f64> {
+        let k = self.states;
+        Array2::from_shape_fn((k, k), |(i, j)| self.rows[i * k + j].asymmetry)
+    }
+
     /// As a tidy table, one row per ordered pair.
     pub fn to_table(&self) -> Table {
         let col_f = |f: &dyn Fn(&PairRow) -> f64| Column::F64(self.rows.iter().map(f).collect());
@@ -175,6 +182,9 @@ pub struct SubjectSummary {
     pub asymmetry_vs_timescale_shift_spearman: Option<Correlation>,
     /// Pearson correlation of ΔE_ij with Δτ_ij (i < j), when timescales were given.
     pub asymmetry_vs_timescale_shift_pearson: Option<Correlation>,
+    /// The asymmetry matrix split into a per-state potential and a circulation
+    /// ([`super::decompose_asymmetry`]).
+    pub asymmetry_decomposition: AsymmetryDecomposition,
 }
 
 /// Summarise a pair table (see the module docs for which pairs enter).
@@ -209,6 +219,7 @@ pub fn summarise(table: &PairTable) -> Result<SubjectSummary, LinkError> {
         asymmetry_vs_distance_pearson: pearson(&dist, &asym).map_err(stat("asymmetry vs distance"))?,
         asymmetry_vs_timescale_shift_spearman: ts_s,
         asymmetry_vs_timescale_shift_pearson: ts_p,
+        asymmetry_decomposition: decompose_asymmetry(&table.asymmetry_matrix())?,
     })
 }
 

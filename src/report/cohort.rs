@@ -3,10 +3,10 @@
 
 use super::html::Report;
 use super::svg;
-use crate::cohort::model::GroupTest;
-use crate::cohort::run::CohortRun;
-use crate::cohort::subject::SubjectReport;
-use crate::stats::regression::{least_squares_line, OlsFit};
+use crate::export::cohort::{GroupTest, OutcomeModel};
+use crate::stats::regression::least_squares_line;
+use crate::subject::{Outcome, OutcomeRole, SubjectStatus};
+use ndarray::Array2;
 
 fn fmt(v: f64) -> String {
     if v.is_finite() {
@@ -16,46 +16,63 @@ fn fmt(v: f64) -> String {
     }
 }
 
-/// Build the cohort report. `groups` are the cohort-level tests against 0;
-/// `models` holds (outcome name, fit or error text).
-pub fn cohort_report(
-    title: &str,
-    intro: &str,
-    run: &CohortRun,
-    groups: &[GroupTest],
-    models: &[(String, Result<OlsFit, String>)],
-) -> String {
-    let reps = run.reports();
-    let mut r = Report::new(title);
-    r.paragraph(intro);
+/// What the cohort report shows.
+pub struct CohortReportInput<'a> {
+    /// Page title.
+    pub title: &'a str,
+    /// First paragraph.
+    pub intro: &'a str,
+    /// Every subject's status.
+    pub subjects: &'a [SubjectStatus],
+    /// Each outcome's role under the run's settings.
+    pub roles: &'a [(Outcome, OutcomeRole)],
+    /// Cohort tests against 0.
+    pub tests: &'a [GroupTest],
+    /// Covariate models.
+    pub models: &'a [OutcomeModel],
+    /// One subject's asymmetry matrix (states counted from 1), to show.
+    pub example: Option<(String, Array2<f64>)>,
+}
+
+/// Build the cohort report.
+pub fn cohort_report(x: &CohortReportInput<'_>) -> String {
+    let reps: Vec<_> = x.subjects.iter().filter_map(|s| s.record.as_ref()).collect();
+    let mut r = Report::new(x.title);
+    r.paragraph(x.intro);
     r.heading("Run");
     r.paragraph(&format!(
-        "{} subjects: {} succeeded, {} failed. Failures are listed in run_log.csv; every successful subject has its own folder with an HDF5 file, CSV tables and a JSON summary.",
-        run.outcomes.len(),
+        "{} subjects: {} succeeded, {} failed. Failures are listed in run_log.csv; every successful subject has its own folder with an HDF5 file, CSV tables and a JSON summary. docs/outputs.md in the hierax sources defines every column.",
+        x.subjects.len(),
         reps.len(),
-        run.n_failed()
+        x.subjects.len() - reps.len()
     ));
-    let failures: Vec<Vec<String>> = run
-        .outcomes
+    let failures: Vec<Vec<String>> = x
+        .subjects
         .iter()
-        .filter_map(|o| o.result.as_ref().err().map(|e| vec![o.subject.clone(), e.clone()]))
+        .filter_map(|s| s.error.as_ref().map(|e| vec![s.subject.clone(), e.clone()]))
         .collect();
     if !failures.is_empty() {
         r.table(&["subject", "error"], &failures);
     }
 
-    if let Some(first) = reps.first() {
+    r.heading("Outcomes");
+    r.paragraph("Each subject-level outcome and what it is worth under this run's settings. An outcome that is a fixed multiple of another, or the same for every subject, is reported but never tested or modelled as a second finding.");
+    let rows: Vec<Vec<String>> = x
+        .roles
+        .iter()
+        .map(|(o, role)| vec![o.name().to_string(), role.describe(), o.description().to_string()])
+        .collect();
+    r.table(&["outcome", "role", "meaning"], &rows);
+
+    if let Some((subject, m)) = &x.example {
         r.heading("Example subject");
         r.paragraph(&format!(
-            "Energy asymmetry E(i→j) − E(j→i) for {} (rows: initial state, columns: target state; states ordered along the hierarchy map). Negative entries above the diagonal mean the bottom-up transition is cheaper.",
-            first.subject
+            "Energy asymmetry E(i→j) − E(j→i) for {subject} (rows: initial state, columns: target state; states counted from 1 along the hierarchy map). Negative entries above the diagonal mean the bottom-up transition is cheaper."
         ));
-        if let Some(m) = pair_asymmetry_matrix(first) {
-            r.figure(
-                &svg::heatmap("Energy asymmetry", "initial state", "target state", &m),
-                "Asymmetry matrix of the first subject.",
-            );
-        }
+        r.figure(
+            &svg::heatmap("Energy asymmetry", "initial state", "target state", m),
+            "Asymmetry matrix of one subject.",
+        );
     }
 
     r.heading("Per-subject relations");
@@ -63,48 +80,46 @@ pub fn cohort_report(
         .iter()
         .map(|x| x.covariates.get("age").and_then(|a| a.parse().ok()).unwrap_or(f64::NAN))
         .collect();
-    let plots: [(&str, &str, crate::cohort::model::Outcome); 4] = [
-        ("Bottom-up minus top-down energy", "mean energy difference", |x| x.summary.bottom_up_minus_top_down),
-        ("Asymmetry slope against hierarchical distance", "slope per bin", |x| {
-            x.summary.asymmetry_vs_distance_line.slope
-        }),
-        ("Asymmetry against timescale shift", "Spearman rho", |x| {
-            x.summary.asymmetry_vs_timescale_shift_spearman.map_or(f64::NAN, |c| c.r)
-        }),
-        ("Timescale against hierarchy map", "Spearman rho", |x| {
-            x.timescale_vs_hierarchy_spearman.unwrap_or(f64::NAN)
-        }),
-    ];
-    for (title, ylab, f) in plots {
-        let y: Vec<f64> = reps.iter().map(|x| f(x)).collect();
+    for (o, role) in x.roles {
+        if !role.is_finding() {
+            continue;
+        }
+        let y: Vec<f64> = reps.iter().map(|x| x.outcome(*o)).collect();
         let line = least_squares_line(&age, &y).ok().map(|l| (l.intercept, l.slope));
         r.figure(
-            &svg::scatter(title, "age (years)", ylab, &age, &y, line),
-            &format!("{title}, one point per subject, with the least-squares line on age."),
+            &svg::scatter(o.name(), "age (years)", o.name(), &age, &y, line),
+            &format!(
+                "{}: {}. One point per subject, with the least-squares line on age.",
+                o.name(),
+                o.description()
+            ),
         );
     }
 
     r.heading("Cohort tests");
-    r.paragraph("Each subject-level outcome tested against 0 across subjects by a sign-flip permutation test (two-sided; Nichols & Holmes 2002). A negative bottom-up minus top-down energy means bottom-up transitions are cheaper.");
-    let rows: Vec<Vec<String>> = groups
+    r.paragraph("Each finding tested against 0 across subjects by a sign-flip permutation test (two-sided; Nichols & Holmes 2002), with Benjamini–Hochberg adjustment across the outcomes. A negative bottom-up minus top-down energy means bottom-up transitions are cheaper.");
+    let rows: Vec<Vec<String>> = x
+        .tests
         .iter()
         .map(|g| {
             vec![
-                g.outcome.clone(),
+                g.outcome.name().to_string(),
                 g.n.to_string(),
                 fmt(g.mean),
                 format!("{:.4}", g.p_value),
-                g.permutations.to_string(),
+                format!("{:.4}", g.p_fdr),
+                g.sign_flips.to_string(),
             ]
         })
         .collect();
-    r.table(&["outcome", "n", "mean", "p", "sign flips"], &rows);
+    r.table(&["outcome", "n", "mean", "p", "p (FDR)", "sign flips"], &rows);
 
-    r.heading("Age models");
-    r.paragraph("Ordinary least squares of each subject-level outcome on the covariates (classical standard errors; categorical covariates in treatment coding).");
+    r.heading("Covariate models");
+    r.paragraph("Ordinary least squares of each finding on the covariates (classical standard errors; categorical covariates in treatment coding).");
     let mut rows = Vec::new();
-    for (name, fit) in models {
-        match fit {
+    for m in x.models {
+        let name = m.outcome.name().to_string();
+        match &m.fit {
             Ok(f) => {
                 for j in 0..f.terms.len() {
                     rows.push(vec![
@@ -120,7 +135,7 @@ pub fn cohort_report(
                 }
             }
             Err(e) => rows.push(vec![
-                name.clone(),
+                name,
                 "not fitted".into(),
                 e.clone(),
                 String::new(),
@@ -134,45 +149,25 @@ pub fn cohort_report(
     r.table(&["outcome", "term", "estimate", "SE", "t", "p", "n", "R²"], &rows);
 
     r.heading("Per-subject summary");
+    let test_keys: Vec<String> =
+        reps.first().map(|x| x.tests.iter().map(|t| t.0.clone()).collect()).unwrap_or_default();
+    let mut header: Vec<String> =
+        vec!["subject".into(), "age".into(), "frames kept".into(), "BU − TD energy".into()];
+    header.extend(test_keys.iter().map(|k| format!("p {k}")));
+    header.push("max terminal error".into());
     let mut rows = Vec::new();
     for x in &reps {
-        let p = |i: usize| x.tests.get(i).map_or("".to_string(), |t| format!("{:.3}", t.p_value));
-        rows.push(vec![
+        let mut row = vec![
             x.subject.clone(),
             x.covariates.get("age").cloned().unwrap_or_default(),
             x.n_valid_frames.to_string(),
-            fmt(x.summary.bottom_up_minus_top_down),
-            fmt(x.summary.asymmetry_vs_distance_line.slope),
-            p(0),
-            p(2),
-            format!("{:.2e}", x.terminal_error_max),
-        ]);
+            fmt(x.outcome(Outcome::BottomUpMinusTopDown)),
+        ];
+        row.extend(x.tests.iter().map(|t| format!("{:.3}", t.1)));
+        row.push(format!("{:.2e}", x.terminal_error_max));
+        rows.push(row);
     }
-    let first_tests: Vec<String> =
-        reps.first().map(|x| x.tests.iter().map(|t| t.name.clone()).collect()).unwrap_or_default();
-    r.table(
-        &[
-            "subject",
-            "age",
-            "frames kept",
-            "BU − TD energy",
-            "asymmetry slope",
-            "p (network nulls)",
-            "p (spun maps)",
-            "max terminal error",
-        ],
-        &rows,
-    );
-    if !first_tests.is_empty() {
-        r.paragraph(&format!("Null tests per subject, in order: {}.", first_tests.join("; ")));
-    }
+    let header: Vec<&str> = header.iter().map(String::as_str).collect();
+    r.table(&header, &rows);
     r.finish()
-}
-
-fn pair_asymmetry_matrix(x: &SubjectReport) -> Option<ndarray::Array2<f64>> {
-    let k = x.energy.len();
-    if k == 0 || x.energy.iter().any(|r| r.len() != k) {
-        return None;
-    }
-    Some(ndarray::Array2::from_shape_fn((k, k), |(i, j)| x.energy[i][j] - x.energy[j][i]))
 }

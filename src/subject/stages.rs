@@ -1,0 +1,346 @@
+//! The stages of the per-subject job, one per home module, each callable and
+//! testable alone. None reads or writes a file.
+
+use super::config::{NullModel, ValidSubjectConfig};
+use super::outcomes::{NullFamily, Outcome, OutcomeSource};
+use super::result::{ControlStage, LinkStage, NullRow, NullRun, NullTest, TimescaleStage};
+use super::{LoadedSubject, SubjectError};
+use crate::control::{energy_matrix, node_metrics, Par, System};
+use crate::hierarchy::{build_states, surrogate_maps, Order, SpatialInputs, States, StatesParams};
+use crate::io::table::Column;
+use crate::link::{self, SubjectSummary};
+use crate::stats::correlation::{spearman, Correlation};
+use crate::stats::inference::{benjamini_hochberg, permutation_p_value, Alternative};
+use crate::stats::nulls::{degree_preserving, geometry_preserving, strength_preserving, RewireInfo};
+use crate::stats::StatsError;
+use crate::timescale::{
+    censor_from_displacement, estimate_timescales, EstimateStatus, Estimator, NuisanceSpec, RegionStatus,
+    TimescaleParams,
+};
+use ndarray::Array2;
+use rand::SeedableRng;
+use rand_chacha::ChaCha20Rng;
+use rayon::prelude::*;
+
+/// The timescale columns the job can link, with their estimator.
+pub const TIMESCALE_COLUMNS: [&str; 7] =
+    ["ips_tau_s", "acw50_s", "acw50_interp_s", "acw0_s", "acw0_interp_s", "exp_tau_s", "knee_tau_s"];
+
+/// The estimator behind a timescale column name.
+pub fn timescale_column_estimator(column: &str) -> Option<Estimator> {
+    Some(match column {
+        "ips_tau_s" => Estimator::InitialPositiveSum,
+        "acw50_s" | "acw50_interp_s" => Estimator::Acw50,
+        "acw0_s" | "acw0_interp_s" => Estimator::Acw0,
+        "exp_tau_s" => Estimator::ExpFit,
+        "knee_tau_s" => Estimator::SpectralKnee,
+        _ => return None,
+    })
+}
+
+/// Stage 1 (`timescale`): censor, regress confounds and estimate every
+/// region's intrinsic timescale; keep the chosen column, NaN where that
+/// estimator (or the region) failed QC.
+///
+/// # Errors
+/// [`SubjectError::Timescales`] naming the series or confounds file.
+pub fn timescales(s: &LoadedSubject, cfg: &ValidSubjectConfig) -> Result<TimescaleStage, SubjectError> {
+    let p = cfg.params();
+    let n_frames = s.series.nrows();
+    let confounds_label = || s.specs.confounds.as_ref().map(|c| c.to_string()).unwrap_or_default();
+    let valid = match (&s.framewise_displacement, p.fd_threshold_mm) {
+        (Some(fd), Some(t)) => Some(
+            censor_from_displacement(fd, t, p.censor_after)
+                .map_err(|source| SubjectError::Timescales { input: confounds_label(), source })?,
+        ),
+        _ => None,
+    };
+    let mut tparams = TimescaleParams::new(p.tr_s);
+    tparams.nuisance =
+        NuisanceSpec { demean: true, detrend_order: p.detrend_order, confounds: p.confound_columns.clone() };
+    // Use the caller's thread pool: a pool of our own inside a subject would nest pools.
+    tparams.threads = None;
+    if let Some(w) = p.welch_segment {
+        tparams.welch_segment = Some(w.min(n_frames));
+    }
+    let series_label = s.specs.series.to_string();
+    let vparams = tparams
+        .check(n_frames)
+        .map_err(|source| SubjectError::Timescales { input: series_label.clone(), source })?;
+    let result = estimate_timescales(s.series.view(), &s.names, valid.as_deref(), &s.confounds, &vparams)
+        .map_err(|source| SubjectError::Timescales { input: series_label.clone(), source })?;
+    let estimator = timescale_column_estimator(&p.timescale_column).ok_or_else(|| {
+        crate::param::ParamError::new("timescale_column", &p.timescale_column, TIMESCALE_COLUMNS.join(", "))
+    })?;
+    let table = result.to_table();
+    let Some(Column::F64(values)) = table.column(&p.timescale_column) else {
+        return Err(crate::param::ParamError::new(
+            "timescale_column",
+            &p.timescale_column,
+            "a column the timescale estimators produced",
+        )
+        .into());
+    };
+    let usable = |r: &crate::timescale::RegionResult| {
+        r.status == RegionStatus::Ok && r.estimates.status_of(estimator) == EstimateStatus::Ok
+    };
+    let tau: Vec<f64> =
+        result.regions.iter().zip(values).map(|(r, &v)| if usable(r) { v } else { f64::NAN }).collect();
+    let n_flagged = result.regions.iter().filter(|r| !usable(r)).count();
+    Ok(TimescaleStage { column: p.timescale_column.clone(), estimator, tau, n_flagged, result })
+}
+
+/// Stage 2 (`hierarchy`): rank the regions along the map into k equal-count states.
+///
+/// # Errors
+/// [`SubjectError::Hierarchy`] naming the map.
+pub fn states(s: &LoadedSubject, cfg: &ValidSubjectConfig) -> Result<States, SubjectError> {
+    build_states(&s.map, &states_params(cfg)).map_err(|source| SubjectError::Hierarchy {
+        stage: "states",
+        input: s.specs.map.to_string(),
+        source,
+    })
+}
+
+fn states_params(cfg: &ValidSubjectConfig) -> StatesParams {
+    let p = cfg.params();
+    StatesParams {
+        bins: p.bins,
+        order: if p.descending { Order::Descending } else { Order::Ascending },
+        unit_norm: false,
+    }
+}
+
+/// Stage 3 (`control`): the network's one decomposition, the k × k energy
+/// matrix and node metrics. Returns the system too, so map nulls reuse its
+/// decomposition.
+///
+/// # Errors
+/// [`SubjectError::Control`] naming the connectome.
+pub fn control(
+    s: &LoadedSubject,
+    states: &States,
+    cfg: &ValidSubjectConfig,
+    par: Par,
+) -> Result<(ControlStage, System), SubjectError> {
+    let err = |source| SubjectError::Control { input: s.specs.connectome.to_string(), source };
+    let vsys = cfg.system_for(s.n_regions()).map_err(err)?;
+    let sys = System::new(s.weights.view(), cfg.params().directed, &vsys, par).map_err(err)?;
+    let (energy, info) = energy_matrix(&sys, states.matrix.view()).map_err(err)?;
+    let metrics = node_metrics(&sys).map_err(err)?;
+    Ok((ControlStage { energy, info, metrics }, sys))
+}
+
+/// Stage 4 (`link`): per-state timescales, the pair table, its summaries and
+/// the asymmetry decomposition; the timescale–map correlation.
+///
+/// # Errors
+/// [`SubjectError::Link`], e.g. a state without any valid timescale.
+pub fn link(
+    map: &[f64],
+    states: &States,
+    tau: &[f64],
+    energy: &Array2<f64>,
+) -> Result<LinkStage, SubjectError> {
+    let state_timescale_s = link::bin_means(tau, &states.bins)?;
+    let pairs = link::pair_table(energy, Some(&state_timescale_s))?;
+    let summary = link::summarise(&pairs)?;
+    Ok(LinkStage { timescale_hierarchy: timescale_vs_map(tau, map), state_timescale_s, pairs, summary })
+}
+
+/// Spearman of regional timescale with the map over regions where both are finite.
+fn timescale_vs_map(tau: &[f64], map: &[f64]) -> Option<Correlation> {
+    let (t, m): (Vec<f64>, Vec<f64>) =
+        tau.iter().zip(map).filter(|(t, m)| t.is_finite() && m.is_finite()).map(|(t, m)| (*t, *m)).unzip();
+    spearman(&m, &t).ok()
+}
+
+/// The outcomes of `family` tested under `cfg`.
+fn family_outcomes(cfg: &ValidSubjectConfig, family: NullFamily) -> Vec<Outcome> {
+    cfg.null_tests().into_iter().filter(|(_, f)| *f == family).map(|(o, _)| o).collect()
+}
+
+fn outcome_values(outcomes: &[Outcome], summary: &SubjectSummary, tau_rho: Option<f64>) -> Vec<f64> {
+    let src = OutcomeSource { summary, timescale_hierarchy_spearman: tau_rho };
+    outcomes.iter().map(|o| o.value(&src)).collect()
+}
+
+fn rewire(
+    w: &Array2<f64>,
+    dist: Option<&Array2<f64>>,
+    cfg: &ValidSubjectConfig,
+    rng: &mut ChaCha20Rng,
+) -> Result<(Array2<f64>, RewireInfo), StatsError> {
+    let p = cfg.params();
+    match (p.null_model, dist) {
+        (NullModel::Degree, _) => degree_preserving(w, p.swaps_per_edge, rng),
+        (NullModel::Strength, _) => strength_preserving(w, p.swaps_per_edge, rng),
+        (NullModel::Geometry, Some(d)) => geometry_preserving(w, d, p.length_bins, p.swaps_per_edge, rng),
+        (NullModel::Geometry, None) => {
+            Err(StatsError::OutOfRange { name: "distances", expected: "a distance matrix", value: f64::NAN })
+        }
+    }
+}
+
+/// Stage 5 (`stats::nulls`): recompute the tested outcomes on rewired
+/// networks with the same states. Null `i` draws from ChaCha20 stream
+/// `1 + i` of the seed, so results do not depend on the thread count.
+///
+/// # Errors
+/// [`SubjectError::Nulls`] when a rewiring fails on the observed network.
+pub fn network_nulls(
+    s: &LoadedSubject,
+    states: &States,
+    link: &LinkStage,
+    cfg: &ValidSubjectConfig,
+) -> Result<Option<NullRun>, SubjectError> {
+    let p = cfg.params();
+    if p.network_nulls == 0 {
+        return Ok(None);
+    }
+    let outcomes = family_outcomes(cfg, NullFamily::Network);
+    let vsys = cfg
+        .system_for(s.n_regions())
+        .map_err(|source| SubjectError::Control { input: s.specs.connectome.to_string(), source })?;
+    let err = |source| SubjectError::Nulls { family: "network", source };
+    let rows: Vec<Result<Option<NullRow>, StatsError>> = (0..p.network_nulls)
+        .into_par_iter()
+        .map(|i| {
+            let mut rng = ChaCha20Rng::seed_from_u64(p.seed);
+            rng.set_stream(1 + i as u64);
+            let (w, info) = rewire(&s.weights, s.distances.as_ref(), cfg, &mut rng)?;
+            // A rewired network the model cannot use (e.g. a node left without edges) is skipped
+            // and counted.
+            let summary = System::new(w.view(), p.directed, &vsys, Par::Seq).ok().and_then(|sys| {
+                let (e, _) = energy_matrix(&sys, states.matrix.view()).ok()?;
+                link::summarise(&link::pair_table(&e, Some(&link.state_timescale_s)).ok()?).ok()
+            });
+            Ok(summary.map(|sm| NullRow {
+                index: i,
+                values: outcome_values(&outcomes, &sm, None),
+                rewire: Some(info),
+            }))
+        })
+        .collect();
+    let mut kept = Vec::new();
+    for r in rows {
+        if let Some(row) = r.map_err(err)? {
+            kept.push(row);
+        }
+    }
+    Ok(Some(NullRun {
+        family: NullFamily::Network,
+        method: p.null_model.label().to_string(),
+        requested: p.network_nulls,
+        outcomes,
+        rows: kept,
+    }))
+}
+
+/// Stage 6 (`hierarchy` surrogates): recompute the tested outcomes with
+/// states re-binned from surrogate maps, on the same network (its one
+/// decomposition reused), and the timescale–map correlation of each
+/// surrogate.
+///
+/// # Errors
+/// [`SubjectError::Hierarchy`] when the surrogates cannot be made from the map.
+pub fn map_nulls(
+    s: &LoadedSubject,
+    sys: &System,
+    tau: &[f64],
+    cfg: &ValidSubjectConfig,
+) -> Result<Option<NullRun>, SubjectError> {
+    let p = cfg.params();
+    if p.map_nulls == 0 {
+        return Ok(None);
+    }
+    let outcomes = family_outcomes(cfg, NullFamily::Map);
+    let spatial = SpatialInputs { sphere: s.sphere.as_ref(), distances: s.distances.as_ref() };
+    let surrogates =
+        surrogate_maps(p.map_null_method, &s.map, spatial, p.map_nulls, p.seed).map_err(|source| {
+            SubjectError::Hierarchy { stage: "map nulls", input: s.specs.map.to_string(), source }
+        })?;
+    let sparams = states_params(cfg);
+    let rows: Vec<Option<NullRow>> = (0..p.map_nulls)
+        .into_par_iter()
+        .map(|m| {
+            let surrogate: Vec<f64> = surrogates.column(m).to_vec();
+            let st = build_states(&surrogate, &sparams).ok()?;
+            let st_tau = link::bin_means(tau, &st.bins).ok()?;
+            let (e, _) = energy_matrix(sys, st.matrix.view()).ok()?;
+            let sm = link::summarise(&link::pair_table(&e, Some(&st_tau)).ok()?).ok()?;
+            let rho = timescale_vs_map(tau, &surrogate).map(|c| c.r);
+            Some(NullRow { index: m, values: outcome_values(&outcomes, &sm, rho), rewire: None })
+        })
+        .collect();
+    Ok(Some(NullRun {
+        family: NullFamily::Map,
+        method: p.map_null_method.label().to_string(),
+        requested: p.map_nulls,
+        outcomes,
+        rows: rows.into_iter().flatten().collect(),
+    }))
+}
+
+/// Stage 7 (`stats::inference`): two-sided permutation p-values (Phipson &
+/// Smyth 2010) of every tested outcome against its nulls, then
+/// Benjamini–Hochberg (1995) across the whole family.
+///
+/// A null run whose statistic never moved (every null equal to the
+/// observed value) is refused: its p-value of 1 would test nothing.
+///
+/// # Errors
+/// [`SubjectError::Nulls`] for a refused or empty null distribution.
+pub fn null_tests(observed: &[(Outcome, f64)], runs: &[&NullRun]) -> Result<Vec<NullTest>, SubjectError> {
+    let mut tests = Vec::new();
+    for run in runs {
+        let family = run.family.label();
+        let err = |source| SubjectError::Nulls { family, source };
+        for (k, outcome) in run.outcomes.iter().enumerate() {
+            let obs = observed.iter().find(|(o, _)| o == outcome).map_or(f64::NAN, |(_, v)| *v);
+            let null: Vec<f64> = run.rows.iter().map(|r| r.values[k]).filter(|v| v.is_finite()).collect();
+            let (mean, sd) = mean_sd(&null);
+            let tol = 1e-12 * obs.abs().max(1e-300);
+            if !null.is_empty() && null.iter().all(|v| (v - obs).abs() <= tol) {
+                return Err(SubjectError::NullsDidNotMove {
+                    family,
+                    method: run.method.clone(),
+                    outcome: outcome.name(),
+                    reason: format!(
+                        "all {} nulls equal the observed value {obs:.6e}, so the test would report p = 1 and \
+                         test nothing",
+                        null.len()
+                    ),
+                });
+            }
+            let p = permutation_p_value(obs, &null, Alternative::TwoSided).map_err(err)?;
+            tests.push(NullTest {
+                outcome: *outcome,
+                family: run.family,
+                method: run.method.clone(),
+                observed: obs,
+                n_null: null.len(),
+                null_mean: mean,
+                null_sd: sd,
+                p_value: p,
+                p_fdr: f64::NAN,
+            });
+        }
+    }
+    if !tests.is_empty() {
+        let p: Vec<f64> = tests.iter().map(|t| t.p_value).collect();
+        let adj = benjamini_hochberg(&p).map_err(|source| SubjectError::Nulls { family: "all", source })?;
+        for (t, a) in tests.iter_mut().zip(adj) {
+            t.p_fdr = a;
+        }
+    }
+    Ok(tests)
+}
+
+/// Mean and sample standard deviation (n − 1); NaN when undefined.
+fn mean_sd(v: &[f64]) -> (f64, f64) {
+    let n = v.len() as f64;
+    let mean = v.iter().sum::<f64>() / n;
+    let sd = (v.iter().map(|x| (x - mean).powi(2)).sum::<f64>() / (n - 1.0)).sqrt();
+    (if v.is_empty() { f64::NAN } else { mean }, if v.len() < 2 { f64::NAN } else { sd })
+}
