@@ -313,11 +313,11 @@ fn states_command_writes_tables() {
     let regions = std::fs::read_to_string(dir.path().join("o/regions.csv")).unwrap();
     assert_eq!(
         regions,
-        "region_index,region,value,rank,state\n1,A,0.5,3,2\n2,B,0.1,1,1\n3,C,NaN,NaN,NaN\n4,D,0.9,4,2\n5,E,0.3,2,1\n"
+        "region_number,region,map_value,rank,state\n1,A,0.5,3,2\n2,B,0.1,1,1\n3,C,NaN,NaN,NaN\n4,D,0.9,4,2\n5,E,0.3,2,1\n"
     );
     let json = std::fs::read_to_string(dir.path().join("o/states.json")).unwrap();
     assert!(json.contains("\"excluded_regions\": [\n    3\n  ]"), "{json}");
-    assert!(dir.path().join("o/distance.csv").exists() && dir.path().join("o/states.csv").exists());
+    assert!(dir.path().join("o/distance.csv").exists() && dir.path().join("o/state_vectors.csv").exists());
 }
 
 #[test]

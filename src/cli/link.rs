@@ -2,6 +2,9 @@
 
 use anyhow::{anyhow, bail};
 use clap::Args;
+use hierax::export::folder::{write_folder, Marker};
+use hierax::export::subject::pairs_table;
+use hierax::export::{schema, CsvSink, Sink};
 use hierax::hierarchy::{build_states, StatesParams};
 use hierax::io::provenance::{InputRecord, Provenance};
 use hierax::io::table::write_json;
@@ -15,11 +18,12 @@ use std::process::ExitCode;
 /// distance, energy, asymmetry, timescale shift) from a k x k energy matrix
 /// whose states are ordered along the hierarchy, and summarise it.
 #[derive(Debug, Args)]
-#[command(after_help = "Examples:\n  \
-    hierax energy sc.csv --map hierarchy.csv --bins 10 --out energy/\n  \
-    hierax link --energy energy/energy_matrix.csv --timescales ts/timescales.csv:ips_tau_s \\\n    \
-    --map hierarchy.csv --bins 10 --out link/\n  \
-    hierax link --energy energy/energy_matrix.csv --state-timescales tau_per_state.csv --out link/")]
+#[command(after_help = "Examples (the bundled invented data):\n  \
+    hierax energy demo-data/sub-01/sub-01_connectome.csv --map demo-data/atlas/hierarchy.csv --bins 10 --out energy-output\n  \
+    hierax timescales demo-data/sub-01/sub-01_bold.npy --tr 2 --orientation time-by-region --out timescales-output\n  \
+    hierax link --energy energy-output/energy_matrix.csv --timescales timescales-output/timescales.csv:ips_tau_s \\\n    \
+    --map demo-data/atlas/hierarchy.csv --bins 10 --out link-output\n\n\
+    States are counted from 1 in pairs.csv, as in every hierax output.")]
 pub struct LinkArgs {
     /// Energy matrix (k x k, row = initial state, column = target state), PATH[:KEY].
     #[arg(long, value_name = "SPEC")]
@@ -76,18 +80,15 @@ pub fn run(args: LinkArgs) -> anyhow::Result<ExitCode> {
     };
     let table = link::pair_table(&energy, state_tau.as_deref()).map_err(|e| anyhow!("{espec}: {e}"))?;
     let summary = link::summarise(&table).map_err(|e| anyhow!("{espec}: {e}"))?;
-    let mut prov = Provenance::new("link", serde_json::json!({ "states": k }));
-    prov.inputs = inputs;
-    // Write both files or neither: the table first, removed again if the summary fails.
-    let pairs_path = args.out.join("pairs.csv");
-    table.to_table().write_csv(&pairs_path)?;
-    if let Err(e) = write_json(
-        &args.out.join("link.json"),
-        &serde_json::json!({ "summary": summary, "provenance": prov }),
-    ) {
-        let _ = std::fs::remove_file(&pairs_path);
-        return Err(e.into());
-    }
+    let parameters = serde_json::json!({ "states": k });
+    let mut prov = Provenance::new("link", parameters.clone());
+    let digests: Vec<&str> = inputs.iter().map(|r| r.sha256.as_str()).collect();
+    let marker = Marker::new("link", &parameters, &digests);
+    prov.inputs = inputs.clone();
+    write_folder(&args.out, marker, |dir| {
+        CsvSink::new(dir, "").table(&schema::PAIRS, &pairs_table(&table))?;
+        write_json(&dir.join("link.json"), &serde_json::json!({ "summary": summary, "provenance": prov }))
+    })?;
     println!(
         "{k} states: bottom-up mean {:.4}, top-down mean {:.4}, asymmetry slope {:+.4} per bin (Spearman {:+.3})",
         summary.mean_bottom_up_energy,

@@ -32,7 +32,13 @@ pub fn markdown() -> String {
          `.hierax-output.json`, the marker that lets hierax replace it (and nothing else).\n"
     );
     for t in ALL_TABLES {
-        let scope = if t.h5_path.is_some() { "subject" } else { "cohort" };
+        let scope = if t.h5_path.is_some() {
+            "subject"
+        } else if t.row.contains("(hierax states)") {
+            "hierax states"
+        } else {
+            "cohort"
+        };
         let _ = writeln!(s, "## `{}` ({scope})\n", t.stem);
         let _ = write!(s, "One row: {}.", t.row);
         if let Some(p) = t.h5_path {

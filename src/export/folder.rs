@@ -175,6 +175,36 @@ impl Drop for StagedFolder {
     }
 }
 
+/// Write a command's files into the folder `out`, all or nothing: they are
+/// assembled in a hidden folder beside `out` and renamed into place, so a
+/// failure (a full disk included) leaves `out` as it was. An existing `out`
+/// is replaced only when hierax made it.
+///
+/// # Errors
+/// [`IoError::NotOurs`] for a folder hierax did not make or an `out` without
+/// a final name (`.`, `/`); the writer's error, with nothing left behind.
+pub fn write_folder(
+    out: &Path,
+    marker: Marker,
+    write: impl FnOnce(&Path) -> Result<(), IoError>,
+) -> Result<PathBuf, IoError> {
+    let name =
+        out.file_name().and_then(|n| n.to_str()).filter(|n| *n != "." && *n != "..").ok_or_else(|| {
+            IoError::NotOurs {
+                path: out.to_path_buf(),
+                reason: "expected an output folder with a name of its own".into(),
+            }
+        })?;
+    let parent = match out.parent() {
+        Some(p) if !p.as_os_str().is_empty() => p.to_path_buf(),
+        _ => PathBuf::from("."),
+    };
+    std::fs::create_dir_all(&parent).map_err(|e| IoError::os(&parent, "cannot create directory", e))?;
+    let staged = StagedFolder::begin(&parent, name, marker)?;
+    write(staged.path())?;
+    staged.commit()
+}
+
 #[cfg(test)]
 mod tests {
     use super::*;

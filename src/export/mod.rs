@@ -10,6 +10,7 @@ pub mod cohort;
 pub mod dictionary;
 pub mod folder;
 pub mod schema;
+pub mod states;
 pub mod subject;
 
 use crate::io::hdf5::{AttrValue, Group};

@@ -225,8 +225,68 @@ pub const AGE_MODELS: TableDef = TableDef {
     ],
 };
 
+/// `regions.csv` of `hierax states`.
+pub const MAP_RANKS: TableDef = TableDef {
+    stem: "regions",
+    h5_path: None,
+    row: "one region (hierax states)",
+    columns: &[
+        REGION_NUMBER,
+        REGION,
+        c("map_value", "map units", "hierarchy map value (NaN: region excluded from the states)"),
+        c(
+            "rank",
+            "-",
+            "rank along the map, 1 = lowest (ascending) or highest (descending); NaN when excluded",
+        ),
+        c("state", "-", "state holding the region, 1 = lowest; NaN when excluded"),
+    ],
+};
+
+/// `bins.csv` of `hierax states`.
+pub const STATE_BINS: TableDef = TableDef {
+    stem: "bins",
+    h5_path: None,
+    row: "one state (hierax states)",
+    columns: &[
+        c("state", "-", "state number along the hierarchy, 1 = lowest"),
+        c("n_regions", "1", "regions in the state"),
+        c("first_rank", "-", "rank of its first region"),
+        c("last_rank", "-", "rank of its last region"),
+        c("min_map_value", "map units", "smallest map value in the state"),
+        c("max_map_value", "map units", "largest map value in the state"),
+    ],
+};
+
+/// `state_vectors.csv` of `hierax states`.
+pub const STATE_VECTORS: TableDef = TableDef {
+    stem: "state_vectors",
+    h5_path: None,
+    row: "one region (hierax states)",
+    columns: &[
+        REGION,
+        c(
+            "state_{j}",
+            "1",
+            "entry of state j's vector: 1 (or 1/sqrt(size) with unit norm) for the state's regions, else 0",
+        ),
+    ],
+};
+
+/// `distance.csv` of `hierax states`.
+pub const STATE_DISTANCE: TableDef = TableDef {
+    stem: "distance",
+    h5_path: None,
+    row: "one ordered pair of states (hierax states)",
+    columns: &[
+        c("initial_state", "-", "state the transition starts from, 1 = lowest"),
+        c("target_state", "-", "state the transition reaches"),
+        c("distance", "states", "signed hierarchical distance target - initial; positive: bottom-up"),
+    ],
+};
+
 /// Every table, for the data dictionary.
-pub const ALL_TABLES: [&TableDef; 11] = [
+pub const ALL_TABLES: [&TableDef; 15] = [
     &REGIONS,
     &STATES,
     &PAIRS,
@@ -234,6 +294,10 @@ pub const ALL_TABLES: [&TableDef; 11] = [
     &NETWORK_NULLS,
     &MAP_NULLS,
     &TESTS,
+    &MAP_RANKS,
+    &STATE_BINS,
+    &STATE_VECTORS,
+    &STATE_DISTANCE,
     &COHORT,
     &RUN_LOG,
     &GROUP_TESTS,

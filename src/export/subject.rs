@@ -27,8 +27,8 @@ pub fn marker_for(r: &SubjectResult) -> Marker {
     Marker::new("subject", &parameters_json(r), &digests)
 }
 
-fn opt_number(v: Option<usize>) -> f64 {
-    v.map_or(f64::NAN, |i| number(i) as f64)
+fn opt_number(v: Option<usize>) -> Option<i64> {
+    v.map(number)
 }
 
 fn ints(v: impl IntoIterator<Item = i64>) -> Column {
@@ -43,9 +43,8 @@ pub fn regions_table(r: &SubjectResult) -> Table {
         .col("region_number", ints((0..n).map(number)))
         .col("region", Column::Str(r.names.clone()))
         .col("map_value", Column::F64(r.map.clone()))
-        // Optional numbers are written as floats so a missing one reads as NaN in pandas and R.
-        .col("rank", Column::F64(r.states.rank.iter().map(|&x| opt_number(x)).collect()))
-        .col("state", Column::F64(r.states.bin_of.iter().map(|&x| opt_number(x)).collect()))
+        .col("rank", Column::OptI64(r.states.rank.iter().map(|&x| opt_number(x)).collect()))
+        .col("state", Column::OptI64(r.states.bin_of.iter().map(|&x| opt_number(x)).collect()))
         .col("timescale_s", Column::F64(r.timescales.tau.clone()))
         .col("average_controllability", Column::F64(m.average.to_vec()))
         .col(

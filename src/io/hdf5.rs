@@ -787,6 +787,10 @@ impl Group {
                 Some(Column::F64(v)) => DataValue::F64 { shape: vec![v.len()], data: v.clone() },
                 Some(Column::I64(v)) => DataValue::I64 { shape: vec![v.len()], data: v.clone() },
                 Some(Column::Str(v)) => DataValue::Str(v.clone()),
+                Some(Column::OptI64(v)) => DataValue::F64 {
+                    shape: vec![v.len()],
+                    data: v.iter().map(|x| x.map_or(f64::NAN, |x| x as f64)).collect(),
+                },
                 None => continue,
             };
             g.add_dataset(col, value);

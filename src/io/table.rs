@@ -19,6 +19,8 @@ pub enum Column {
     I64(Vec<i64>),
     /// Text values.
     Str(Vec<String>),
+    /// Integers that may be missing (`NaN` in CSV, NaN in a float64 HDF5 dataset).
+    OptI64(Vec<Option<i64>>),
 }
 
 impl Column {
@@ -27,6 +29,7 @@ impl Column {
             Column::F64(v) => v.len(),
             Column::I64(v) => v.len(),
             Column::Str(v) => v.len(),
+            Column::OptI64(v) => v.len(),
         }
     }
 
@@ -35,6 +38,7 @@ impl Column {
             Column::F64(v) => format_f64(v[i]),
             Column::I64(v) => v[i].to_string(),
             Column::Str(v) => v[i].clone(),
+            Column::OptI64(v) => v[i].map_or_else(|| "NaN".to_string(), |x| x.to_string()),
         }
     }
 }
