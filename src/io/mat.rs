@@ -734,6 +734,25 @@ fn inflate(data: &[u8], limit: Option<usize>) -> std::io::Result<(Vec<u8>, bool)
     }
 }
 
+/// Inflate a compressed element no further than the size its own
+/// `miMATRIX` tag declares (8 + nbytes), so a stream that inflates beyond
+/// its declaration (a "zip bomb") costs no more memory than the variable it
+/// claims to hold. A stream shorter than its declaration is returned whole
+/// and reported by the caller's bounds checks.
+fn inflate_declared(stream: &[u8], endian: Endian) -> std::io::Result<(Vec<u8>, bool)> {
+    let (tag, _) = inflate(stream, Some(8))?;
+    if tag.len() < 8 {
+        return Ok((tag, true));
+    }
+    let mut n = [0u8; 4];
+    n.copy_from_slice(&tag[4..8]);
+    let nbytes = match endian {
+        Endian::Little => u32::from_le_bytes(n),
+        Endian::Big => u32::from_be_bytes(n),
+    } as usize;
+    inflate(stream, Some(8 + nbytes))
+}
+
 /// The `miMATRIX` tag at the start of inflated data, and the buffer limited to it.
 fn inflated_matrix(buf: &[u8], endian: Endian, complete: bool) -> Result<(Bytes<'_>, Tag), Corrupt> {
     let b = Bytes { data: buf, endian };
@@ -810,7 +829,8 @@ fn compressed_header(stream: &[u8], endian: Endian) -> Result<MatrixHeader, Infl
             return Ok(h);
         }
     }
-    let (full, _) = if complete { (prefix, true) } else { inflate(stream, None).map_err(Inflate::Io)? };
+    let (full, _) =
+        if complete { (prefix, true) } else { inflate_declared(stream, endian).map_err(Inflate::Io)? };
     let (b, t) = inflated_matrix(&full, endian, true).map_err(Inflate::Corrupt)?;
     matrix_header(b, t.data_at).map_err(Inflate::Corrupt)
 }
@@ -924,7 +944,7 @@ fn read_from_bytes(spec: &InputSpec, bytes: &[u8]) -> Result<LoadedArray, IoErro
             decode_variable(file.limit(end), at).map_err(|c| corrupt_error(path, Place::File, c))?
         }
         Body::Compressed { tag_at, at, end } => {
-            let (buf, _) = inflate(&bytes[at..end], None).map_err(|e| {
+            let (buf, _) = inflate_declared(&bytes[at..end], endian).map_err(|e| {
                 IoError::format(
                     path,
                     format!("the compressed variable at byte {tag_at} does not inflate: {e}"),
@@ -1183,6 +1203,22 @@ mod tests {
         let m = w.matrix(6, 0, &[2, 2], "x", &[w.element(MI_DOUBLE, &w.f64s(&[1.0, 2.0, 3.0]), true)]);
         let e = decode_variable(Bytes { data: &m, endian: Endian::Little }, 8).unwrap_err();
         assert!(e.what.contains("real part holds 3 values but dimensions [2, 2] need 4"), "{}", e.what);
+    }
+
+    #[test]
+    fn a_stream_inflating_beyond_its_declared_size_is_capped() {
+        use std::io::Write;
+        let w = W(Endian::Little);
+        let m = w.matrix(12, 0, &[1, 2], "conn", &[w.element(MI_INT32, &w.i32s(&[4, -5]), true)]);
+        let declared = m.len();
+        // 64 MiB of zeros after the variable: the stream inflates far beyond what the tag declares.
+        let mut z = flate2::write::ZlibEncoder::new(Vec::new(), flate2::Compression::default());
+        z.write_all(&m).unwrap();
+        z.write_all(&vec![0u8; 64 << 20]).unwrap();
+        let stream = z.finish().unwrap();
+        let (buf, complete) = inflate_declared(&stream, Endian::Little).unwrap();
+        assert_eq!(buf.len(), declared);
+        assert!(!complete);
     }
 
     #[test]

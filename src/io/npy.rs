@@ -92,6 +92,63 @@ fn finish(spec: &InputSpec, data: ArrayD<f64>, stored: StoredType) -> LoadedArra
     la
 }
 
+/// The npy format's largest deflate expansion: zlib's maximum compression
+/// ratio is about 1032:1 (RFC 1951 blocks of 258-byte matches), so a member
+/// cannot hold more than this many bytes per compressed byte.
+const MAX_DEFLATE_RATIO: u64 = 1032;
+
+/// Header length and declared data size (bytes) of an npy stream, from its
+/// preamble and header dictionary (NumPy's format: magic `\x93NUMPY`,
+/// version, little-endian header length, then a Python dict literal with
+/// `descr` and `shape`). Checked before anything is allocated, so a tiny
+/// file that declares a huge array is refused instead of aborting the
+/// process.
+fn declared_size(head: &[u8]) -> Result<(u64, u64), String> {
+    if head.len() < 10 || &head[..6] != b"\x93NUMPY" {
+        return Err("it does not start with the NumPy magic string".into());
+    }
+    let (len, start) = match head[6] {
+        1 => (u16::from_le_bytes([head[8], head[9]]) as u64, 10u64),
+        2 | 3 if head.len() >= 12 => (u32::from_le_bytes([head[8], head[9], head[10], head[11]]) as u64, 12),
+        v => return Err(format!("npy format version {v} is not supported")),
+    };
+    let end = (start + len).min(head.len() as u64) as usize;
+    let dict = String::from_utf8_lossy(&head[start as usize..end]);
+    let descr =
+        dict.split("'descr'").nth(1).and_then(|r| r.split('\'').nth(1)).ok_or("the header has no 'descr'")?;
+    let item: u64 =
+        descr.trim_start_matches(['<', '>', '|', '=']).get(1..).and_then(|d| d.parse().ok()).unwrap_or(8);
+    let shape = dict
+        .split("'shape'")
+        .nth(1)
+        .and_then(|r| r.split('(').nth(1))
+        .and_then(|r| r.split(')').next())
+        .ok_or("the header has no 'shape'")?;
+    let mut total = item;
+    for d in shape.split(',').map(str::trim).filter(|d| !d.is_empty()) {
+        let d: u64 = d.parse().map_err(|_| format!("shape entry `{d}` is not a number"))?;
+        total = total.checked_mul(d).ok_or("the declared shape overflows")?;
+    }
+    Ok((start + len, total))
+}
+
+/// Refuse an npy stream whose declared data exceed `available` bytes.
+fn check_declared(path: &std::path::Path, what: &str, head: &[u8], available: u64) -> Result<(), IoError> {
+    let (header, data) = declared_size(head)
+        .map_err(|e| IoError::format(path, format!("{what}not a readable .npy array: {e}")))?;
+    if header.saturating_add(data) > available {
+        return Err(IoError::format(
+            path,
+            format!(
+                "{what}the header declares {data} bytes of data but only {} are present; the file is truncated or \
+                 corrupt",
+                available.saturating_sub(header)
+            ),
+        ));
+    }
+    Ok(())
+}
+
 /// Read a `.npy` file.
 ///
 /// # Errors
@@ -105,6 +162,7 @@ pub fn read_npy_file(spec: &InputSpec) -> Result<LoadedArray, IoError> {
         });
     }
     let bytes = read_bytes(&spec.path)?;
+    check_declared(&spec.path, "", &bytes, bytes.len() as u64)?;
     let (data, stored) =
         decode(&mut NpyBytes(&bytes)).map_err(|e| IoError::format(&spec.path, describe(&e)))?;
     Ok(finish(spec, data, stored))
@@ -118,7 +176,7 @@ pub fn read_npy_file(spec: &InputSpec) -> Result<LoadedArray, IoError> {
 pub fn read_npz_file(spec: &InputSpec) -> Result<LoadedArray, IoError> {
     let bytes = read_bytes(&spec.path)?;
     let not_npz = |e: ReadNpzError| IoError::format(&spec.path, format!("not a readable .npz archive: {e}"));
-    let mut zip = NpzReader::new(Cursor::new(bytes)).map_err(not_npz)?;
+    let mut zip = NpzReader::new(Cursor::new(bytes.clone())).map_err(not_npz)?;
     let names: Vec<String> = zip
         .names()
         .map_err(not_npz)?
@@ -144,6 +202,7 @@ pub fn read_npz_file(spec: &InputSpec) -> Result<LoadedArray, IoError> {
             })
         }
     };
+    check_member(spec, &bytes, &key)?;
     let mut member = NpzMember { zip: &mut zip, name: key.clone(), archive_error: None };
     let decoded = decode(&mut member);
     if let Some(e) = member.archive_error {
@@ -154,6 +213,37 @@ pub fn read_npz_file(spec: &InputSpec) -> Result<LoadedArray, IoError> {
     let mut la = finish(spec, data, stored);
     la.spec.key = Some(key);
     Ok(la)
+}
+
+/// Check an `.npz` member's declared array against what the archive can
+/// hold: its stated uncompressed size, and at most [`MAX_DEFLATE_RATIO`]
+/// bytes per compressed byte.
+fn check_member(spec: &InputSpec, bytes: &[u8], key: &str) -> Result<(), IoError> {
+    use std::io::Read;
+    let bad = |e: String| IoError::format(&spec.path, format!("array `{key}`: {e}"));
+    let mut archive = zip::ZipArchive::new(Cursor::new(bytes)).map_err(|e| bad(e.to_string()))?;
+    let with_ext = format!("{key}.npy");
+    let name = if archive.index_for_name(&with_ext).is_some() { with_ext } else { key.to_string() };
+    let mut file = archive.by_name(&name).map_err(|e| bad(e.to_string()))?;
+    let (size, compressed) = (file.size(), file.compressed_size());
+    let bound = match file.compression() {
+        zip::CompressionMethod::Stored => compressed,
+        _ => compressed.saturating_mul(MAX_DEFLATE_RATIO),
+    };
+    let mut head = vec![0u8; 12];
+    let got = file.read(&mut head).map_err(|e| bad(e.to_string()))?;
+    head.truncate(got);
+    if got >= 10 {
+        let header = match head[6] {
+            1 => 10 + u16::from_le_bytes([head[8], head[9]]) as u64,
+            _ if got >= 12 => 12 + u32::from_le_bytes([head[8], head[9], head[10], head[11]]) as u64,
+            _ => 12,
+        };
+        let mut rest = vec![0u8; (header.min(1 << 20) as usize).saturating_sub(got)];
+        file.read_exact(&mut rest).map_err(|e| bad(format!("header: {e}")))?;
+        head.extend_from_slice(&rest);
+    }
+    check_declared(&spec.path, &format!("array `{key}`: "), &head, size.min(bound))
 }
 
 /// The arrays of a `.npz` archive as `name (shape dtype)`, for listing.
@@ -188,4 +278,40 @@ pub fn list_npz(path: &std::path::Path) -> Result<Vec<String>, IoError> {
 pub fn write_npy_f64(path: &std::path::Path, data: &ArrayD<f64>) -> Result<(), IoError> {
     use ndarray_npy::WriteNpyExt;
     super::atomic::write_atomic(path, |w| data.write_npy(w).map_err(|e| std::io::Error::other(e.to_string())))
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+
+    /// A 128-byte file whose header declares 200000 x 200000 float64 (320 GB).
+    fn huge_header() -> Vec<u8> {
+        let dict = "{'descr': '<f8', 'fortran_order': False, 'shape': (200000, 200000), }";
+        let mut h = format!("{dict:<117}\n").into_bytes();
+        let mut b = b"\x93NUMPY\x01\x00".to_vec();
+        b.extend_from_slice(&(h.len() as u16).to_le_bytes());
+        b.append(&mut h);
+        b.extend_from_slice(&[0u8; 16]);
+        b
+    }
+
+    #[test]
+    fn a_tiny_file_declaring_a_huge_array_is_refused_before_allocating() {
+        let dir = tempfile::tempdir().unwrap();
+        let p = dir.path().join("bomb.npy");
+        std::fs::write(&p, huge_header()).unwrap();
+        let e = read_npy_file(&InputSpec::new(&p, None)).unwrap_err().to_string();
+        assert!(e.contains("declares 320000000000 bytes of data but only 16 are present"), "{e}");
+        // The same member inside an .npz archive (stored, then deflated).
+        for method in [zip::CompressionMethod::Stored, zip::CompressionMethod::Deflated] {
+            let z = dir.path().join("bomb.npz");
+            let mut w = zip::ZipWriter::new(std::fs::File::create(&z).unwrap());
+            let opts = zip::write::SimpleFileOptions::default().compression_method(method);
+            w.start_file("a.npy", opts).unwrap();
+            std::io::Write::write_all(&mut w, &huge_header()).unwrap();
+            w.finish().unwrap();
+            let e = read_npz_file(&InputSpec::new(&z, Some("a"))).unwrap_err().to_string();
+            assert!(e.contains("array `a`: the header declares 320000000000 bytes"), "{method:?}: {e}");
+        }
+    }
 }
