@@ -9,6 +9,7 @@ mod cli;
 use std::process::ExitCode;
 
 fn main() -> ExitCode {
+    ignore_file_size_signal();
     match cli::run() {
         Ok(code) => code,
         Err(err) => {
@@ -18,3 +19,18 @@ fn main() -> ExitCode {
         }
     }
 }
+
+/// Under a file-size limit (`ulimit -f`) the kernel kills a writer with
+/// SIGXFSZ, leaving no message. Ignored, the write fails with EFBIG instead,
+/// which our writers report and clean up like a full disk.
+#[cfg(unix)]
+fn ignore_file_size_signal() {
+    // SAFETY: setting a signal's disposition to SIG_IGN at start-up, before any thread exists, has
+    // no memory-safety preconditions.
+    unsafe {
+        libc::signal(libc::SIGXFSZ, libc::SIG_IGN);
+    }
+}
+
+#[cfg(not(unix))]
+fn ignore_file_size_signal() {}
