@@ -26,7 +26,7 @@ fn demo_into(out: &Path) {
     let o = run(hierax().args(["demo", "--nulls", "0", "--quiet", "--out"]).arg(out));
     assert!(o.status.success());
     let text = String::from_utf8(o.stdout).unwrap();
-    assert!(text.contains("24 succeeded, 0 failed"), "{text}");
+    assert!(text.contains("24 succeeded (0 kept from an earlier run), 0 failed"), "{text}");
     assert!(text.contains("not for clinical decisions"), "{text}");
 }
 
@@ -330,7 +330,7 @@ fn cohort_run_logs_a_failing_subject_and_finishes_the_others() {
 
     let out = dir.path().join("out");
     let o = run(hierax()
-        .args(["cohort", "--tr", "2", "--quiet", "--data"])
+        .args(["cohort", "run", "--tr", "2", "--quiet", "--data"])
         .arg(&data)
         .arg("--map")
         .arg(root.join("demo-data/atlas/hierarchy.csv"))

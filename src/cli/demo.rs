@@ -3,7 +3,7 @@
 use super::cohort::{run_and_report, Reporting};
 use anyhow::{bail, Context};
 use clap::Args;
-use hierax::cohort::{Manifest, Patterns, SharedInputs};
+use hierax::cohort::{CovariateKind, Manifest, Patterns, SharedInputs};
 use hierax::io::InputSpec;
 use hierax::subject::SubjectConfig;
 use std::path::PathBuf;
@@ -80,7 +80,11 @@ pub fn run(args: DemoArgs) -> anyhow::Result<ExitCode> {
         &shared,
         &cfg,
         &args.out,
-        &["age", "sex", "mean_framewise_displacement"],
+        &[
+            ("age", CovariateKind::Numeric),
+            ("sex", CovariateKind::Categorical),
+            ("mean_framewise_displacement", CovariateKind::Numeric),
+        ],
         &Reporting {
             title: "hierax demo: Larkspur Youth Imaging Pilot (INVENTED data)",
             intro: "Every participant, connectome, series and map in this report is invented by examples/make_demo.rs \
@@ -88,6 +92,9 @@ pub fn run(args: DemoArgs) -> anyhow::Result<ExitCode> {
             quiet: args.quiet,
             command: "demo",
             inputs: vec![args.data.clone()],
+            shard: None,
+            resume: true,
+            overwrite: true,
         },
     )?;
     println!("The demo data are invented.");

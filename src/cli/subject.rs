@@ -352,7 +352,8 @@ pub fn run(args: SubjectArgs) -> anyhow::Result<ExitCode> {
     let loaded = hierax::subject::LoadedSubject::load(&inputs, &cfg).map_err(with_flag_names)?;
     let result = hierax::subject::analyse_subject(&loaded, &cfg, hierax::control::Par::rayon(0))
         .map_err(with_flag_names)?;
-    super::cohort::prepare_out(&args.out, &inputs_paths(&inputs))?;
+    let marker = hierax::export::folder::Marker::new("results", &serde_json::json!({}), &[]);
+    super::cohort::prepare_out(&args.out, &inputs_paths(&inputs), &marker, false)?;
     let written = hierax::export::subject::write_subject(&result, &args.out, "subject")?;
     print_summary(&result, &written);
     println!("Research software: results are not for clinical decisions.");

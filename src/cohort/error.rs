@@ -41,6 +41,48 @@ pub enum CohortError {
         /// What was wrong.
         reason: String,
     },
+    /// A filename pattern is malformed.
+    #[error("{role} pattern `{pattern}`: {reason}")]
+    Pattern {
+        /// Which input.
+        role: &'static str,
+        /// The pattern.
+        pattern: String,
+        /// What is wrong.
+        reason: String,
+    },
+    /// A covariate is missing or mistyped.
+    #[error("covariate `{column}`: {reason}")]
+    Covariate {
+        /// The column.
+        column: String,
+        /// What is wrong, naming the unit.
+        reason: String,
+    },
+    /// A shard outside 1..=count.
+    #[error("shard {index}/{count}: expected I/N with 1 <= I <= N")]
+    Shard {
+        /// The shard asked for.
+        index: usize,
+        /// The number of shards.
+        count: usize,
+    },
+    /// Another run holds the output folder.
+    #[error("{path}: {reason}")]
+    Locked {
+        /// The lock file.
+        path: PathBuf,
+        /// Who holds it and what to do.
+        reason: String,
+    },
+    /// Outputs of different runs cannot be combined.
+    #[error("{path}: {reason}")]
+    Mixed {
+        /// The folder or file at fault.
+        path: PathBuf,
+        /// What differs.
+        reason: String,
+    },
     /// A cohort-level statistic failed.
     #[error("{what}: {source}")]
     Stats {

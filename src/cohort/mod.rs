@@ -6,17 +6,18 @@
 //! A cohort is described by a BIDS-style `participants.tsv` (column
 //! `participant_id` = `sub-<label>`, plus covariates such as `age` and `sex`)
 //! and filename patterns that locate each participant's inputs, e.g.
-//! `sub-{id}/sub-{id}_connectome.csv` where `{id}` is the label without the
+//! `sub-{subject}/sub-{subject}_connectome.csv` where `{subject}` is the label without the
 //! `sub-` prefix.
 
 mod error;
 pub mod manifest;
+pub mod merge;
 pub mod model;
 pub mod run;
 
 pub use error::CohortError;
-pub use manifest::{Manifest, Participant, Patterns};
-pub use run::{run_cohort, CohortRun, SharedInputs};
+pub use manifest::{CovariateKind, Manifest, Participant, Patterns};
+pub use run::{run_cohort, CohortRun, RunLock, RunOptions, SharedInputs};
 
 use crate::export::cohort::{GroupTest, OutcomeModel};
 use crate::subject::{Outcome, OutcomeRole, ValidSubjectConfig};

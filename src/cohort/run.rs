@@ -1,17 +1,21 @@
 //! Running the per-subject job over a cohort: in parallel on one rayon pool,
-//! fault-tolerant (a failing subject is recorded and the others go on), each
-//! subject written as soon as it is done, and only a compact record kept in
-//! memory.
+//! fault-tolerant (a failing unit is recorded and the others go on), each
+//! unit written as soon as it is done with only a compact record kept in
+//! memory, restartable (a unit whose folder was made with the same
+//! parameters from unchanged inputs is not recomputed), and guarded by a lock
+//! so that two runs never share an output folder.
 
-use super::{CohortError, Manifest};
+use super::{CohortError, Manifest, Participant};
 use crate::control::Par;
+use crate::export::folder::{Marker, MARKER};
+use crate::io::provenance::sha256_file;
 use crate::io::InputSpec;
 use crate::subject::{
     analyse_subject, LoadedSubject, SubjectInputs, SubjectRecord, SubjectStatus, ValidSubjectConfig,
 };
 use rayon::prelude::*;
 use serde::Serialize;
-use std::path::Path;
+use std::path::{Path, PathBuf};
 
 /// Inputs shared by every subject of a cohort (one atlas).
 #[derive(Clone, Debug, Serialize)]
@@ -26,26 +30,96 @@ pub struct SharedInputs {
     pub hemisphere: Option<InputSpec>,
 }
 
-/// The outcome of a cohort run, in manifest order.
+/// How a cohort run treats earlier outputs.
+#[derive(Clone, Copy, Debug, PartialEq, Eq)]
+pub struct RunOptions<'a> {
+    /// Keep units whose folders were made with the same parameters from
+    /// unchanged inputs (default true).
+    pub resume: bool,
+    /// The command, for provenance.
+    pub command: &'a str,
+}
+
+/// The outcome of a cohort run, in unit-name order.
 #[derive(Clone, Debug, Serialize)]
 pub struct CohortRun {
-    /// One status per participant.
+    /// One status per unit.
     pub subjects: Vec<SubjectStatus>,
+    /// Units kept from an earlier run (not recomputed).
+    pub resumed: usize,
 }
 
 impl CohortRun {
-    /// Records of the subjects that succeeded.
+    /// Records of the units that succeeded.
     pub fn records(&self) -> Vec<&SubjectRecord> {
         self.subjects.iter().filter_map(|s| s.record.as_ref()).collect()
     }
 
-    /// Number of failed subjects.
+    /// Number of failed units.
     pub fn n_failed(&self) -> usize {
         self.subjects.iter().filter(|s| s.record.is_none()).count()
     }
 }
 
-/// Load, analyse and write one subject; a failure becomes its status.
+/// The parameters digest that identifies a run's settings.
+pub fn parameters_marker(cfg: &ValidSubjectConfig, kind: &str) -> Marker {
+    Marker::new(kind, &serde_json::to_value(cfg.params()).unwrap_or_default(), &[])
+}
+
+/// The record of a unit folder written earlier, if the folder is complete,
+/// was made with the parameters of `cfg` and its inputs are unchanged
+/// (SHA-256 of every input recorded in its summary).
+pub fn reusable(dir: &Path, unit: &str, cfg: &ValidSubjectConfig) -> Option<SubjectRecord> {
+    let marker = Marker::read(dir)?;
+    if marker.kind != "subject"
+        || marker.version != crate::VERSION
+        || marker.parameters_sha256 != parameters_marker(cfg, "subject").parameters_sha256
+    {
+        return None;
+    }
+    let text = std::fs::read_to_string(dir.join(format!("{unit}_summary.json"))).ok()?;
+    let v: serde_json::Value = serde_json::from_str(&text).ok()?;
+    for input in v["provenance"]["inputs"].as_array()? {
+        let spec = InputSpec::parse(input["spec"].as_str()?).ok()?;
+        let (digest, _) = sha256_file(&spec.path).ok()?;
+        if digest != input["sha256"].as_str()? {
+            return None;
+        }
+    }
+    let mut record: SubjectRecord = serde_json::from_value(v["record"].clone()).ok()?;
+    record.output = dir.to_path_buf();
+    Some(record)
+}
+
+/// Remove a unit's folder from an earlier run when hierax made it, so a
+/// unit that fails now leaves no stale result that looks current.
+fn remove_stale(dir: &Path) {
+    if dir.join(MARKER).is_file() {
+        let _ = std::fs::remove_dir_all(dir);
+    }
+}
+
+/// The inputs of unit `p`.
+pub fn unit_inputs(p: &Participant, shared: &SharedInputs) -> SubjectInputs {
+    let mut covariates = p.covariates.clone();
+    if let Some(s) = &p.session_id {
+        covariates.insert("participant_id".into(), p.subject_id.clone());
+        covariates.insert("session_id".into(), s.clone());
+    }
+    SubjectInputs {
+        subject: p.subject.clone(),
+        connectome: p.connectome.clone(),
+        series: p.series.clone(),
+        map: shared.map.clone(),
+        confounds: p.confounds.clone(),
+        distances: shared.distances.clone(),
+        sphere: shared.sphere.clone(),
+        hemisphere: shared.hemisphere.clone(),
+        covariates,
+    }
+}
+
+/// Load, analyse and write one unit; a failure becomes its status.
 pub fn run_one(inputs: &SubjectInputs, cfg: &ValidSubjectConfig, out: &Path, command: &str) -> SubjectStatus {
     let result = LoadedSubject::load(inputs, cfg)
         .and_then(|s| analyse_subject(&s, cfg, Par::Seq))
@@ -56,48 +130,182 @@ pub fn run_one(inputs: &SubjectInputs, cfg: &ValidSubjectConfig, out: &Path, com
         });
     match result {
         Ok(record) => SubjectStatus { subject: inputs.subject.clone(), record: Some(record), error: None },
-        Err(e) => SubjectStatus {
-            subject: inputs.subject.clone(),
-            record: None,
-            error: Some(format!("{}: {e}", inputs.subject)),
-        },
+        Err(e) => {
+            remove_stale(&out.join(&inputs.subject));
+            SubjectStatus {
+                subject: inputs.subject.clone(),
+                record: None,
+                error: Some(format!("{}: {e}", inputs.subject)),
+            }
+        }
     }
 }
 
-/// Run the per-subject job for every participant of `manifest` on the
-/// current rayon pool, writing `out/<subject>/`. `progress` is called once
-/// per finished subject.
+/// Run the per-subject job for every unit of `manifest` on the current rayon
+/// pool, writing `out/<unit>/`. `progress` is called once per finished unit.
+/// The caller holds the output folder's lock ([`RunLock`]).
 ///
 /// # Errors
-/// None today beyond what each subject records; the `Result` is kept for
+/// None today beyond what each unit records; the `Result` is kept for
 /// run-level failures.
 pub fn run_cohort(
     manifest: &Manifest,
     shared: &SharedInputs,
     cfg: &ValidSubjectConfig,
     out: &Path,
-    command: &str,
+    opts: RunOptions<'_>,
     progress: &(dyn Fn(&SubjectStatus) + Sync),
 ) -> Result<CohortRun, CohortError> {
-    let subjects: Vec<SubjectStatus> = manifest
+    remove_dead_staging(out);
+    let done: Vec<(SubjectStatus, bool)> = manifest
         .participants
         .par_iter()
         .map(|p| {
-            let inputs = SubjectInputs {
-                subject: p.subject.clone(),
-                connectome: p.connectome.clone(),
-                series: p.series.clone(),
-                map: shared.map.clone(),
-                confounds: p.confounds.clone(),
-                distances: shared.distances.clone(),
-                sphere: shared.sphere.clone(),
-                hemisphere: shared.hemisphere.clone(),
-                covariates: p.covariates.clone(),
+            let dir = out.join(&p.subject);
+            let (status, kept) = if let Some(why) = &p.missing {
+                remove_stale(&dir);
+                (
+                    SubjectStatus {
+                        subject: p.subject.clone(),
+                        record: None,
+                        error: Some(format!("{}: {why}", p.subject)),
+                    },
+                    false,
+                )
+            } else if let Some(record) = opts.resume.then(|| reusable(&dir, &p.subject, cfg)).flatten() {
+                (SubjectStatus { subject: p.subject.clone(), record: Some(record), error: None }, true)
+            } else {
+                (run_one(&unit_inputs(p, shared), cfg, out, opts.command), false)
             };
-            let status = run_one(&inputs, cfg, out, command);
             progress(&status);
-            status
+            (status, kept)
         })
         .collect();
-    Ok(CohortRun { subjects })
+    let resumed = done.iter().filter(|(_, k)| *k).count();
+    Ok(CohortRun { subjects: done.into_iter().map(|(s, _)| s).collect(), resumed })
+}
+
+/// Whether process `pid` is alive on this host.
+fn alive(pid: u32) -> bool {
+    Path::new(&format!("/proc/{pid}")).exists()
+}
+
+fn host() -> String {
+    std::fs::read_to_string("/proc/sys/kernel/hostname")
+        .map(|h| h.trim().to_string())
+        .or_else(|_| std::env::var("HOSTNAME"))
+        .unwrap_or_else(|_| "unknown-host".into())
+}
+
+/// Remove staging folders `.<unit>.<pid>.partial` left by runs that died
+/// (their process is gone); a live run's staging is left alone.
+pub fn remove_dead_staging(out: &Path) {
+    let Ok(entries) = std::fs::read_dir(out) else { return };
+    for e in entries.flatten() {
+        let name = e.file_name().to_string_lossy().into_owned();
+        let Some(stem) = name.strip_prefix('.').and_then(|n| n.strip_suffix(".partial")) else { continue };
+        let Some(pid) = stem.rsplit('.').next().and_then(|p| p.parse::<u32>().ok()) else { continue };
+        if pid != std::process::id() && !alive(pid) && e.path().is_dir() {
+            let _ = std::fs::remove_dir_all(e.path());
+        }
+    }
+}
+
+/// A lock file that keeps a second run off an output folder. A lock left by
+/// a process that died on this host is taken over; one held by a live
+/// process, or by another host, is refused. Removed when dropped.
+#[derive(Debug)]
+pub struct RunLock {
+    path: PathBuf,
+}
+
+impl RunLock {
+    /// Take `out/.hierax-lock` (or `.hierax-lock-<name>` for a shard).
+    ///
+    /// # Errors
+    /// [`CohortError::Locked`] naming the holder.
+    pub fn acquire(out: &Path, name: Option<&str>) -> Result<Self, CohortError> {
+        let path = out.join(match name {
+            Some(n) => format!(".hierax-lock-{n}"),
+            None => ".hierax-lock".to_string(),
+        });
+        let me = format!("{} {}\n", std::process::id(), host());
+        for _ in 0..2 {
+            match std::fs::OpenOptions::new().write(true).create_new(true).open(&path) {
+                Ok(mut f) => {
+                    use std::io::Write;
+                    f.write_all(me.as_bytes())
+                        .map_err(|e| crate::io::IoError::os(&path, "cannot write", e))?;
+                    return Ok(RunLock { path });
+                }
+                Err(e) if e.kind() == std::io::ErrorKind::AlreadyExists => {
+                    let text = std::fs::read_to_string(&path).unwrap_or_default();
+                    let mut it = text.split_whitespace();
+                    let pid = it.next().and_then(|p| p.parse::<u32>().ok());
+                    let their_host = it.next().unwrap_or("").to_string();
+                    let stale = their_host == host() && pid.is_some_and(|p| !alive(p));
+                    if !stale {
+                        return Err(CohortError::Locked {
+                            path,
+                            reason: format!(
+                                "another hierax run (process {} on {}) is writing this folder; wait for it, or \
+                                 remove the lock if you are sure it is gone",
+                                pid.map_or("?".into(), |p| p.to_string()),
+                                if their_host.is_empty() { "an unknown host" } else { &their_host }
+                            ),
+                        });
+                    }
+                    let _ = std::fs::remove_file(&path);
+                }
+                Err(e) => return Err(crate::io::IoError::os(&path, "cannot create", e).into()),
+            }
+        }
+        Err(CohortError::Locked { path, reason: "could not take the lock".into() })
+    }
+
+    /// Live locks of other runs in `out` (for merge).
+    pub fn others(out: &Path) -> Vec<PathBuf> {
+        let Ok(entries) = std::fs::read_dir(out) else { return Vec::new() };
+        entries
+            .flatten()
+            .filter(|e| e.file_name().to_string_lossy().starts_with(".hierax-lock"))
+            .filter(|e| {
+                let text = std::fs::read_to_string(e.path()).unwrap_or_default();
+                let mut it = text.split_whitespace();
+                let pid = it.next().and_then(|p| p.parse::<u32>().ok());
+                let h = it.next().unwrap_or("");
+                !(h == host() && pid.is_some_and(|p| !alive(p)))
+            })
+            .map(|e| e.path())
+            .collect()
+    }
+}
+
+impl Drop for RunLock {
+    fn drop(&mut self) {
+        let _ = std::fs::remove_file(&self.path);
+    }
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+
+    #[test]
+    fn a_live_lock_is_refused_and_a_dead_one_taken_over() {
+        let dir = tempfile::tempdir().unwrap();
+        let lock = RunLock::acquire(dir.path(), None).unwrap();
+        let e = RunLock::acquire(dir.path(), None).unwrap_err().to_string();
+        assert!(e.contains("another hierax run"), "{e}");
+        drop(lock);
+        // A lock of a process that cannot exist: 4194999 is above Linux's largest pid_max (2^22).
+        std::fs::write(dir.path().join(".hierax-lock"), format!("4194999 {}\n", host())).unwrap();
+        let _l = RunLock::acquire(dir.path(), None).unwrap();
+        // Dead staging folders go, live ones stay.
+        std::fs::create_dir(dir.path().join(".sub-01.4194999.partial")).unwrap();
+        let mine = dir.path().join(format!(".sub-02.{}.partial", std::process::id()));
+        std::fs::create_dir(&mine).unwrap();
+        remove_dead_staging(dir.path());
+        assert!(!dir.path().join(".sub-01.4194999.partial").exists() && mine.exists());
+    }
 }

@@ -4,7 +4,7 @@ use super::ControlError;
 use serde::Serialize;
 
 /// Continuous time `dx/dt = Ãx + Bu` or discrete time `x_{t+1} = Ãx_t + Bu_t`.
-#[derive(Clone, Copy, Debug, PartialEq, Eq, Serialize, Default)]
+#[derive(Clone, Copy, Debug, PartialEq, Eq, Serialize, serde::Deserialize, Default)]
 #[serde(rename_all = "kebab-case")]
 pub enum TimeModel {
     /// `Ã = A / (c + λ_max(A)) − I` (default).
@@ -15,7 +15,7 @@ pub enum TimeModel {
 }
 
 /// Which nodes receive input, as the diagonal of `B`.
-#[derive(Clone, Debug, PartialEq, Serialize, Default)]
+#[derive(Clone, Debug, PartialEq, Serialize, serde::Deserialize, Default)]
 #[serde(rename_all = "kebab-case")]
 pub enum Drivers {
     /// Every node, `B = I` (default).
@@ -29,7 +29,7 @@ pub enum Drivers {
 
 /// Unchecked system parameters. Build with [`SystemParams::new`], adjust the
 /// fields, then call [`SystemParams::check`].
-#[derive(Clone, Debug, Serialize)]
+#[derive(Clone, Debug, Serialize, serde::Deserialize)]
 pub struct SystemParams {
     /// Time model.
     pub time_model: TimeModel,

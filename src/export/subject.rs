@@ -11,7 +11,7 @@ use crate::io::table::{Column, Table};
 use crate::io::IoError;
 use crate::link::Direction;
 use crate::subject::result::NullRun;
-use crate::subject::{NullFamily, SubjectResult};
+use crate::subject::{NullFamily, SubjectRecord, SubjectResult};
 use serde_json::{json, Value};
 use std::path::{Path, PathBuf};
 
@@ -187,7 +187,7 @@ pub fn tests_table(r: &SubjectResult) -> Table {
 
 /// The summary JSON: every outcome with its role and meaning, the numerics,
 /// the tests and the notes. Keys are snake_case names, never Rust enum names.
-pub fn summary_json(r: &SubjectResult, prov: &Provenance) -> Value {
+pub fn summary_json(r: &SubjectResult, prov: &Provenance, record: &SubjectRecord) -> Value {
     let s = &r.link.summary;
     let roles = r.config.outcome_roles();
     let outcomes: serde_json::Map<String, Value> = roles
@@ -239,6 +239,7 @@ pub fn summary_json(r: &SubjectResult, prov: &Provenance) -> Value {
         })).collect::<Vec<_>>(),
         "notes": r.notes,
         "covariates": r.covariates,
+        "record": record,
         "provenance": prov,
     })
 }
@@ -324,7 +325,7 @@ pub fn write_subject(r: &SubjectResult, out_root: &Path, command: &str) -> Resul
     write_tables(r, &mut Tee(vec![&mut csv, &mut h5s]))?;
     crate::io::table::write_json(
         &staged.path().join(format!("{}_summary.json", r.subject)),
-        &summary_json(r, &prov),
+        &summary_json(r, &prov, &SubjectRecord::of(r, out_root.join(&r.subject))),
     )?;
     h5_extras(r, &prov, &mut h5s);
     h5::write_file(&staged.path().join(format!("{}_hierax.h5", r.subject)), &h5s.finish())?;

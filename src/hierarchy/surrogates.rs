@@ -10,7 +10,7 @@ use ndarray::Array2;
 use serde::Serialize;
 
 /// How surrogate maps are made.
-#[derive(Clone, Copy, Debug, PartialEq, Eq, Serialize, Default)]
+#[derive(Clone, Copy, Debug, PartialEq, Eq, Serialize, serde::Deserialize, Default)]
 #[serde(rename_all = "kebab-case")]
 #[cfg_attr(feature = "cli", derive(clap::ValueEnum))]
 pub enum SurrogateMethod {

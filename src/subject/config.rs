@@ -11,7 +11,7 @@ use crate::param::{require, ParamError};
 use serde::Serialize;
 
 /// Which network null model to use (to move into `stats::nulls`).
-#[derive(Clone, Copy, Debug, PartialEq, Eq, Serialize, Default)]
+#[derive(Clone, Copy, Debug, PartialEq, Eq, Serialize, serde::Deserialize, Default)]
 #[serde(rename_all = "kebab-case")]
 pub enum NullModel {
     /// Maslov–Sneppen degree-preserving swaps (default).
@@ -37,7 +37,7 @@ impl NullModel {
 /// Every parameter of the per-subject job. [`SubjectConfig::new`] lists the
 /// defaults. Fields are public so a caller can build one; only
 /// [`SubjectConfig::check`] turns it into something the job runs.
-#[derive(Clone, Debug, Serialize)]
+#[derive(Clone, Debug, Serialize, serde::Deserialize)]
 pub struct SubjectConfig {
     /// Repetition time in seconds.
     pub tr_s: f64,

@@ -50,6 +50,23 @@ pub fn check_entity(prefix: &'static str, value: &str) -> Result<(), IoError> {
     }
 }
 
+/// Check a unit name: `sub-<label>` or `sub-<label>_ses-<label>`, each
+/// label alphanumeric (the BIDS label rule).
+///
+/// # Errors
+/// [`IoError::BadLabel`] naming the value.
+pub fn check_unit_name(name: &str) -> Result<(), IoError> {
+    let mut parts = name.split('_');
+    check_entity("sub", parts.next().unwrap_or(""))?;
+    if let Some(ses) = parts.next() {
+        check_entity("ses", ses)?;
+    }
+    match parts.next() {
+        None => Ok(()),
+        Some(_) => Err(IoError::BadLabel { value: name.to_string(), prefix: "sub" }),
+    }
+}
+
 /// A subject's inputs, read and validated.
 #[derive(Clone, Debug)]
 pub struct LoadedSubject {
@@ -88,7 +105,7 @@ impl LoadedSubject {
     /// [`SubjectError`] naming the file and field at fault; a missing input
     /// the settings need ([`SubjectError::MissingInput`]).
     pub fn load(inputs: &SubjectInputs, cfg: &ValidSubjectConfig) -> Result<Self, SubjectError> {
-        check_entity("sub", &inputs.subject)?;
+        check_unit_name(&inputs.subject)?;
         let p = cfg.params();
         let needs_distances = (p.network_nulls > 0 && p.null_model == NullModel::Geometry)
             || (p.map_nulls > 0 && p.map_null_method != SurrogateMethod::Spin);
@@ -288,6 +305,8 @@ mod tests {
         for ok in ["sub-01", "sub-A7x"] {
             assert!(check_entity("sub", ok).is_ok(), "{ok}");
         }
+        assert!(check_unit_name("sub-01_ses-2").is_ok());
+        assert!(check_unit_name("sub-01_ses-").is_err() && check_unit_name("sub-01_ses-1_x").is_err());
         for bad in ["sub-", "sub-../x", "../victim", "", "sub-a_b", "sub-x/../../v", "01", "ses-01", "sub-é"]
         {
             let e = check_entity("sub", bad).unwrap_err().to_string();

@@ -1,0 +1,128 @@
+//! Joining the outputs of shards (or of any earlier runs into one folder)
+//! into one cohort, from the written files alone, refusing outputs made with
+//! different parameters or hierax versions.
+
+use super::{CohortError, CohortRun, RunLock};
+use crate::export::folder::Marker;
+use crate::subject::{SubjectRecord, SubjectStatus};
+use serde::{Deserialize, Serialize};
+use std::path::Path;
+
+/// What a shard leaves beside its unit folders: the status of each of its
+/// units (failures included), its parameters and version.
+#[derive(Clone, Debug, Serialize, Deserialize)]
+pub struct ShardLog {
+    /// `I/N`.
+    pub shard: String,
+    /// hierax version.
+    pub version: String,
+    /// The run's parameters.
+    pub parameters: serde_json::Value,
+    /// Each unit's status.
+    pub subjects: Vec<SubjectStatus>,
+}
+
+/// The file name of shard `index` of `count`'s log.
+pub fn shard_log_name(index: usize, count: usize) -> String {
+    format!("shard-{index:04}-of-{count:04}.json")
+}
+
+/// Name the first difference between two parameter sets, as `key: a vs b`.
+fn difference(a: &serde_json::Value, b: &serde_json::Value) -> String {
+    match (a.as_object(), b.as_object()) {
+        (Some(x), Some(y)) => {
+            for (k, va) in x {
+                let vb = y.get(k).unwrap_or(&serde_json::Value::Null);
+                if va != vb {
+                    return format!("{k} = {va} vs {vb}");
+                }
+            }
+            for k in y.keys() {
+                if !x.contains_key(k) {
+                    return format!("{k} only in one of them");
+                }
+            }
+            "none found".into()
+        }
+        _ => format!("{a} vs {b}"),
+    }
+}
+
+/// Gather every unit of `out`: records from the unit folders' summaries,
+/// failures from the shard logs. Refuses while another run holds a lock, and
+/// when units were made with different parameters or hierax versions,
+/// naming the difference.
+///
+/// # Errors
+/// [`CohortError::Locked`], [`CohortError::Mixed`], [`CohortError::Io`].
+pub fn gather(out: &Path) -> Result<(CohortRun, serde_json::Value), CohortError> {
+    if let Some(l) = RunLock::others(out).into_iter().next() {
+        return Err(CohortError::Locked {
+            path: l,
+            reason: "a run is still writing this folder; merge when it has finished".into(),
+        });
+    }
+    let mut first: Option<(String, String, serde_json::Value)> = None;
+    let mut check = |who: &str, version: &str, params: &serde_json::Value| -> Result<(), CohortError> {
+        match &first {
+            None => {
+                first = Some((who.to_string(), version.to_string(), params.clone()));
+                Ok(())
+            }
+            Some((w0, v0, p0)) => {
+                if v0 != version {
+                    return Err(CohortError::Mixed {
+                        path: out.to_path_buf(),
+                        reason: format!("{w0} was made by hierax {v0}, {who} by hierax {version}; merge refuses mixed versions"),
+                    });
+                }
+                if p0 != params {
+                    return Err(CohortError::Mixed {
+                        path: out.to_path_buf(),
+                        reason: format!(
+                            "{w0} and {who} were made with different parameters ({}); merge refuses mixed runs",
+                            difference(p0, params)
+                        ),
+                    });
+                }
+                Ok(())
+            }
+        }
+    };
+    let mut statuses: std::collections::BTreeMap<String, SubjectStatus> = Default::default();
+    let entries = std::fs::read_dir(out).map_err(|e| crate::io::IoError::os(out, "cannot list", e))?;
+    let mut names: Vec<(String, std::path::PathBuf)> =
+        entries.flatten().map(|e| (e.file_name().to_string_lossy().into_owned(), e.path())).collect();
+    names.sort();
+    for (name, path) in &names {
+        if name.starts_with("shard-") && name.ends_with(".json") {
+            let text =
+                std::fs::read_to_string(path).map_err(|e| crate::io::IoError::os(path, "cannot read", e))?;
+            let log: ShardLog = serde_json::from_str(&text)
+                .map_err(|e| crate::io::IoError::format(path, format!("not a shard log: {e}")))?;
+            check(&format!("shard {}", log.shard), &log.version, &log.parameters)?;
+            for s in log.subjects.into_iter().filter(|s| s.record.is_none()) {
+                statuses.insert(s.subject.clone(), s);
+            }
+        }
+    }
+    for (name, path) in &names {
+        let Some(marker) = Marker::read(path) else { continue };
+        if marker.kind != "subject" {
+            continue;
+        }
+        let summary = path.join(format!("{name}_summary.json"));
+        let text = std::fs::read_to_string(&summary)
+            .map_err(|e| crate::io::IoError::os(&summary, "cannot read", e))?;
+        let v: serde_json::Value = serde_json::from_str(&text)
+            .map_err(|e| crate::io::IoError::format(&summary, format!("not a hierax summary: {e}")))?;
+        check(name, v["provenance"]["version"].as_str().unwrap_or(""), &v["provenance"]["parameters"])?;
+        let mut record: SubjectRecord = serde_json::from_value(v["record"].clone())
+            .map_err(|e| crate::io::IoError::format(&summary, format!("no subject record: {e}")))?;
+        record.output = path.clone();
+        statuses
+            .insert(name.clone(), SubjectStatus { subject: name.clone(), record: Some(record), error: None });
+    }
+    let params = first.map(|f| f.2).unwrap_or(serde_json::Value::Null);
+    Ok((CohortRun { subjects: statuses.into_values().collect(), resumed: 0 }, params))
+}
