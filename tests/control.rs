@@ -249,6 +249,13 @@ fn energy_command_writes_all_tables() {
         serde_json::from_str(&std::fs::read_to_string(out.join("control.json")).unwrap()).unwrap();
     assert_eq!(json["provenance"]["command"], "energy");
     assert!(json["qc"]["gramian_condition"].as_f64().unwrap() >= 1.0);
+    // The diagnostics of a result that passes: route, condition and its limit.
+    assert_eq!(json["qc"]["route"], "eigenbasis");
+    assert_eq!(json["qc"]["condition_limit"].as_f64(), Some(CONDITION_LIMIT));
+    let qc = std::fs::read_to_string(out.join("qc.csv")).unwrap();
+    for m in ["gramian_condition,", "gramian_condition_limit,", "terminal_error_relative,"] {
+        assert!(qc.lines().any(|l| l.starts_with(m)), "{m} missing: {qc}");
+    }
 }
 
 #[test]
@@ -257,6 +264,16 @@ fn energy_command_refuses_bad_input_with_one_line_and_exit_2() {
     let p = dir.path();
     let good = write(p, "good.csv", GOOD);
     let states3 = write(p, "s3.csv", "1,0,0\n0,1,0\n");
+    let n_chain: usize = 40;
+    let chain_rows: Vec<String> = (0..n_chain)
+        .map(|i| {
+            (0..n_chain).map(|j| if i.abs_diff(j) == 1 { "1" } else { "0" }).collect::<Vec<_>>().join(",")
+        })
+        .collect();
+    let chain = write(p, "chain.csv", &(chain_rows.join("\n") + "\n"));
+    let half: Vec<String> =
+        (0..n_chain).map(|i| if i < n_chain / 2 { "1" } else { "0" }.to_string()).collect();
+    let chain_states = write(p, "chain_states.csv", &(half.join(",") + "\n"));
     let cases: Vec<(Vec<String>, &str)> = vec![
         (vec![write(p, "ns.csv", "0,1,1\n1,0,1\n").display().to_string()], "expected a square matrix"),
         (
@@ -280,6 +297,17 @@ fn energy_command_refuses_bad_input_with_one_line_and_exit_2() {
                 .chain([good.display().to_string()])
                 .collect(),
             "rank at most drivers x steps = 2 < 4 nodes",
+        ),
+        // A 40-node path driven from one end: condition far above the limit.
+        (
+            vec![
+                chain.display().to_string(),
+                "--drivers".into(),
+                "1".into(),
+                "--states".into(),
+                chain_states.display().to_string(),
+            ],
+            "the controllability Gramian is numerically singular",
         ),
     ];
     let states = write(p, "s.csv", "1,0,0,0\n0,0,1,1\n");
@@ -412,14 +440,20 @@ fn discrete_time_with_too_few_drivers_for_the_horizon_is_refused_by_its_rank_bou
 
 #[test]
 fn energies_that_overflow_are_an_error_not_output() {
-    // States of size 1e200 give energies ~1e400, beyond f64: the terminal
-    // check (NaN/inf fails a positive comparison) refuses them.
+    // States of size 1e200 give energies ~1e400, beyond f64: refused with the
+    // (finite) state scale and the remedy, never returned as infinities.
     let case = "continuous_symmetric_subset";
     let sys = system(case, TimeModel::Continuous, drivers_for(case, "nodes"), false);
     let x = load2(case, "states") * 1e200;
     let e = energy_matrix(&sys, x.view()).unwrap_err();
-    assert!(matches!(e, ControlError::TerminalMiss { .. }), "{e:?}");
-    assert!(e.to_string().contains("misses its target state"), "{e}");
+    match e {
+        ControlError::EnergyOverflow { state_norm_max, .. } => {
+            assert!(state_norm_max.is_finite() && state_norm_max > 1e200, "{state_norm_max:e}")
+        }
+        _ => panic!("expected EnergyOverflow, got {e:?}"),
+    }
+    assert!(e.to_string().contains("rescale the states"), "{e}");
+    eprintln!("refusal: {e}");
 }
 
 // ----- accuracy of the Gramian routes against a 60-digit reference ------
@@ -508,7 +542,8 @@ fn beyond_the_condition_limit_the_reference_case_is_refused() {
     let kappa = scalar(c, "condition");
     assert!(kappa > CONDITION_LIMIT);
     match energy_matrix(&sys, load2(c, "states").view()) {
-        Err(ControlError::SingularGramian { condition, limit }) => {
+        Err(e @ ControlError::SingularGramian { condition, limit }) => {
+            eprintln!("refusal: {e}");
             assert_eq!(limit, CONDITION_LIMIT);
             assert!((condition - kappa).abs() < 1e-3 * kappa, "{condition:e} vs {kappa:e}");
         }

@@ -23,6 +23,9 @@
 //!    `‖x(T) − x_f‖` over pairs, relative to the largest `‖x_f‖`, above
 //!    [`TERMINAL_TOLERANCE`] is refused ([`ControlError::TerminalMiss`]).
 //!
+//! States so large that the energies exceed `f64` are refused as well
+//! ([`ControlError::EnergyOverflow`]), with the state scale to change.
+//!
 //! A result that passes carries its diagnostics in [`EnergyInfo`]
 //! (route, condition, terminal error); nothing is returned with a warning
 //! instead of an error.
@@ -50,6 +53,22 @@ pub const CONDITION_LIMIT: f64 = 1e-3 / f64::EPSILON;
 /// Measured misses are far smaller (3e-6 at κ ≈ 2e11, below 1e-14 for
 /// well-conditioned systems). Our choice.
 pub const TERMINAL_TOLERANCE: f64 = CONDITION_LIMIT * f64::EPSILON;
+
+/// `value ≤ limit`, false for NaN: checks are written positively so that a
+/// NaN condition or error fails them.
+pub(crate) fn within(value: f64, limit: f64) -> bool {
+    value <= limit
+}
+
+/// `‖x‖₂` scaled by the largest `|x_i|`, so that it stays finite for any
+/// finite `x` whose norm is representable.
+pub(crate) fn norm2(x: impl Iterator<Item = f64> + Clone) -> f64 {
+    let m = x.clone().fold(0.0f64, |m, v| m.max(v.abs()));
+    if m == 0.0 || !m.is_finite() {
+        return m;
+    }
+    m * x.map(|v| (v / m).powi(2)).sum::<f64>().sqrt()
+}
 
 /// How the energies were computed.
 #[derive(Clone, Copy, Debug, PartialEq, Eq, Serialize)]
@@ -174,7 +193,9 @@ pub(crate) fn check_states(sys: &System, states: ArrayView2<'_, f64>) -> Result<
 /// [`ControlError::States`] for a wrong row count, no state or a non-finite
 /// value; [`ControlError::RankDeficientGramian`],
 /// [`ControlError::SingularGramian`] and [`ControlError::TerminalMiss`]
-/// by the rule in the [module docs](crate::control::energy).
+/// by the rule in the [module docs](crate::control::energy);
+/// [`ControlError::EnergyOverflow`] when states so large that the energies
+/// exceed `f64` would otherwise come back as infinities.
 pub fn energy_matrix(
     sys: &System,
     states: ArrayView2<'_, f64>,
@@ -217,10 +238,12 @@ pub fn energy_matrix_by(
     let (res, _) = pair_quadratic(alpha.as_ref(), beta.as_ref(), par);
     let terminal =
         res.iter().fold(0.0f64, |m, v| if v.is_nan() { f64::NAN } else { m.max(v.max(0.0).sqrt()) });
-    let state_norm_max =
-        (0..k).map(|j| (0..n).map(|i| states[[i, j]].powi(2)).sum::<f64>().sqrt()).fold(0.0, f64::max);
+    let state_norm_max = (0..k).map(|j| norm2(states.column(j).iter().copied())).fold(0.0, f64::max);
     let relative = if state_norm_max > 0.0 { terminal / state_norm_max } else { terminal };
-    if !(relative <= TERMINAL_TOLERANCE) || energy.iter().any(|v| !v.is_finite()) {
+    if !terminal.is_finite() || energy.iter().any(|v| !v.is_finite()) {
+        return Err(ControlError::EnergyOverflow { state_norm_max, condition: wh.condition });
+    }
+    if !within(relative, TERMINAL_TOLERANCE) {
         return Err(ControlError::TerminalMiss {
             terminal_error: terminal,
             relative,
@@ -333,7 +356,7 @@ impl Whitening {
                 let ev = linalg::sym_eigenvalues(w.as_ref(), par)
                     .map_err(|e| ControlError::Eigen(format!("{e:?}")))?;
                 let cond = if ev[0] > 0.0 { ev[n - 1] / ev[0] } else { f64::INFINITY };
-                if !(cond <= CONDITION_LIMIT) {
+                if !within(cond, CONDITION_LIMIT) {
                     return Err(ControlError::SingularGramian { condition: cond, limit: CONDITION_LIMIT });
                 }
                 let l = linalg::cholesky(w.as_ref(), par)
@@ -342,7 +365,7 @@ impl Whitening {
             }
         };
         // Rule 2, the same limit on every route.
-        if !(condition <= CONDITION_LIMIT) {
+        if !within(condition, CONDITION_LIMIT) {
             return Err(ControlError::SingularGramian { condition, limit: CONDITION_LIMIT });
         }
         Ok(Whitening { eigen, factor, condition, par })
@@ -357,7 +380,7 @@ impl Whitening {
     }
 
     /// `x = Vx̃` in the eigenbasis, `x̃` otherwise.
-    pub(crate) fn from_working(&self, sys: &System, x: MatRef<'_, f64>) -> Mat<f64> {
+    pub(crate) fn to_node_basis(&self, sys: &System, x: MatRef<'_, f64>) -> Mat<f64> {
         match (&sys.eig, self.eigen) {
             (Some(e), true) => linalg::mul(e.vectors.as_ref(), x, sys.par),
             _ => x.to_owned(),

@@ -75,6 +75,20 @@ pub enum ControlError {
         /// Condition number of the Gramian.
         condition: f64,
     },
+    /// The energies (or the end state reached) are not finite `f64`
+    /// numbers although every input was: the states are too large for
+    /// energies that grow with their square.
+    #[error(
+        "the energies overflow f64 (largest state norm {state_norm_max:.3e}, Gramian condition \
+         {condition:.3e}): energy grows with the square of the state scale, so rescale the states \
+         (for example to unit norm)"
+    )]
+    EnergyOverflow {
+        /// Largest `‖x‖₂` over the states.
+        state_norm_max: f64,
+        /// Condition number of the Gramian.
+        condition: f64,
+    },
     /// A computation route was asked for a system it does not apply to.
     #[error("route {}: {reason}", .route.name())]
     RouteUnavailable {

@@ -1,6 +1,6 @@
 //! The optimal input of one transition, its trajectory and node-wise energy.
 
-use super::energy::{check_states, select_route, Whitening, TERMINAL_TOLERANCE};
+use super::energy::{check_states, norm2, select_route, within, Whitening, TERMINAL_TOLERANCE};
 use super::linalg;
 use super::system::{gram_kernel, gramian_van_loan, mode_transition, System};
 use super::{ControlError, TimeModel};
@@ -74,12 +74,16 @@ pub fn optimal_transition(
     let z = wh.half_solve(wh.to_working(sys, r.as_ref()).as_ref());
     let nu_w = wh.half_solve_transpose(z.as_ref());
     let energy: f64 = (0..n).map(|i| z[(i, 0)].powi(2)).sum();
-    let wnu = wh.from_working(sys, wh.gram_apply(nu_w.as_ref()).as_ref());
-    let nu = wh.from_working(sys, nu_w.as_ref());
+    let wnu = wh.to_node_basis(sys, wh.gram_apply(nu_w.as_ref()).as_ref());
+    let nu = wh.to_node_basis(sys, nu_w.as_ref());
     let terminal_error = (0..n).map(|i| (px0[(i, 0)] + wnu[(i, 0)] - xf[i]).powi(2)).sum::<f64>().sqrt();
-    let scale = (0..n).map(|i| xf[i].powi(2)).sum::<f64>().sqrt();
+    // The same scale as `energy_matrix` on the two states: the larger norm.
+    let scale = norm2(x0.iter().copied()).max(norm2(xf.iter().copied()));
     let relative = if scale > 0.0 { terminal_error / scale } else { terminal_error };
-    if !(relative <= TERMINAL_TOLERANCE) || !energy.is_finite() {
+    if !terminal_error.is_finite() || !energy.is_finite() {
+        return Err(ControlError::EnergyOverflow { state_norm_max: scale, condition: wh.condition });
+    }
+    if !within(relative, TERMINAL_TOLERANCE) {
         return Err(ControlError::TerminalMiss {
             terminal_error,
             relative,
