@@ -6,10 +6,16 @@
 //!    Target: hierax's whole energy matrix within 1.5x of that single eigh.
 //! 2. 1000 networks of n = 200, each with its 16 x 16 energy matrix, rayon
 //!    over networks on 2 threads with one thread per faer call: networks/s.
+//! 3. The cost of the most accurate route for partial driver sets: the k = 16
+//!    energy matrix with every third node driven (continuous, T = 1), by the
+//!    chosen square-root route (`gramian-factor`) against forming the Gramian
+//!    (`modal-gramian` for undirected, `block-exponential` for directed
+//!    networks), one thread, the system's eigendecomposition excluded.
+//!    Alone: `cargo bench --bench control_energy -- routes`.
 //!
 //! The machine is shared; figures are medians and indicative only.
 
-use hierax::control::{energy_matrix, Par, System, SystemParams};
+use hierax::control::{energy_matrix, energy_matrix_by, Drivers, Par, Route, System, SystemParams};
 use hierax::hierarchy::{build_states, StatesParams};
 use ndarray::{Array1, Array2};
 use rand::{Rng, SeedableRng};
@@ -55,6 +61,10 @@ fn full_energy(a: &Array2<f64>, x: &Array2<f64>, par: Par) -> f64 {
 }
 
 fn main() {
+    if std::env::args().any(|a| a == "routes") {
+        partial_driver_routes();
+        return;
+    }
     let python = std::env::var("HIERAX_REF_PYTHON").unwrap_or_else(|_| "/opt/hierax-ref/bin/python".into());
     let script = concat!(env!("CARGO_MANIFEST_DIR"), "/benches/control_numpy.py");
     let dir = std::env::temp_dir().join(format!("hierax-bench-{}", std::process::id()));
@@ -131,4 +141,43 @@ fn main() {
         all_s,
         gen_s
     );
+    partial_driver_routes();
+}
+
+/// Section 3 (also alone: `cargo bench --bench control_energy -- routes`).
+fn partial_driver_routes() {
+    for (n, directed, reps) in [(100usize, false, 9usize), (200, false, 7), (400, false, 5), (200, true, 5)] {
+        let mut a = network(n, 7 * n as u64);
+        if directed {
+            // Break the symmetry with a seeded random scaling of each entry.
+            let mut rng = ChaCha8Rng::seed_from_u64(n as u64);
+            a.mapv_inplace(|v| v * (0.5 + rng.random::<f64>()));
+        }
+        let x = states(n, 16, n as u64);
+        let mut p = SystemParams::new();
+        p.drivers = Drivers::Nodes((0..n).step_by(3).collect());
+        let sys = System::new(a.view(), directed, &p.check(n).expect("valid"), Par::Seq).expect("system");
+        let formed = if directed { Route::BlockExponential } else { Route::ModalGramian };
+        let mut line = format!(
+            "n = {n:4}, {} drivers, {}:",
+            n.div_ceil(3),
+            if directed { "directed" } else { "undirected" }
+        );
+        for route in [Route::GramianFactor, formed] {
+            let t: Vec<f64> = (0..reps)
+                .map(|_| {
+                    let t0 = Instant::now();
+                    let r =
+                        energy_matrix_by(&sys, x.view(), route).map(|(e, i)| (e.sum(), i.gramian_condition));
+                    std::hint::black_box(&r);
+                    t0.elapsed().as_secs_f64()
+                })
+                .collect();
+            let cond = energy_matrix_by(&sys, x.view(), route)
+                .map(|(_, i)| format!("condition {:.1e}", i.gramian_condition))
+                .unwrap_or_else(|e| format!("refused: {e}"));
+            line.push_str(&format!(" {} {:.2} ms ({cond});", route.name(), median(t) * 1e3));
+        }
+        println!("{line}");
+    }
 }

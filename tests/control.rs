@@ -4,9 +4,13 @@
 //! command end to end.
 
 use crate::util::{data, files_below, hierax, run, write};
+use hierax::control::energy::CONDITION_LIMIT;
 use hierax::control::penalised::{penalised_energy_matrix, penalised_transition, PenaltyParams};
 use hierax::control::trajectory::optimal_transition;
-use hierax::control::{energy_matrix, Drivers, Par, System, SystemParams, TimeModel};
+use hierax::control::{
+    energy_matrix, energy_matrix_by, state_potentials, state_quadratic_forms, ControlError, Drivers, Par,
+    Route, System, SystemParams, TimeModel,
+};
 use hierax::io::{read_array, InputSpec};
 use ndarray::{Array1, Array2};
 
@@ -245,6 +249,13 @@ fn energy_command_writes_all_tables() {
         serde_json::from_str(&std::fs::read_to_string(out.join("control.json")).unwrap()).unwrap();
     assert_eq!(json["provenance"]["command"], "energy");
     assert!(json["qc"]["gramian_condition"].as_f64().unwrap() >= 1.0);
+    // The diagnostics of a result that passes: route, condition and its limit.
+    assert_eq!(json["qc"]["route"], "eigenbasis");
+    assert_eq!(json["qc"]["condition_limit"].as_f64(), Some(CONDITION_LIMIT));
+    let qc = std::fs::read_to_string(out.join("qc.csv")).unwrap();
+    for m in ["gramian_condition,", "gramian_condition_limit,", "terminal_error_relative,"] {
+        assert!(qc.lines().any(|l| l.starts_with(m)), "{m} missing: {qc}");
+    }
 }
 
 #[test]
@@ -253,6 +264,16 @@ fn energy_command_refuses_bad_input_with_one_line_and_exit_2() {
     let p = dir.path();
     let good = write(p, "good.csv", GOOD);
     let states3 = write(p, "s3.csv", "1,0,0\n0,1,0\n");
+    let n_chain: usize = 40;
+    let chain_rows: Vec<String> = (0..n_chain)
+        .map(|i| {
+            (0..n_chain).map(|j| if i.abs_diff(j) == 1 { "1" } else { "0" }).collect::<Vec<_>>().join(",")
+        })
+        .collect();
+    let chain = write(p, "chain.csv", &(chain_rows.join("\n") + "\n"));
+    let half: Vec<String> =
+        (0..n_chain).map(|i| if i < n_chain / 2 { "1" } else { "0" }.to_string()).collect();
+    let chain_states = write(p, "chain_states.csv", &(half.join(",") + "\n"));
     let cases: Vec<(Vec<String>, &str)> = vec![
         (vec![write(p, "ns.csv", "0,1,1\n1,0,1\n").display().to_string()], "expected a square matrix"),
         (
@@ -269,6 +290,25 @@ fn energy_command_refuses_bad_input_with_one_line_and_exit_2() {
         (vec![good.display().to_string(), "--horizon".into(), "0".into()], "horizon = 0"),
         (vec![good.display().to_string(), "--horizon".into(), "-1".into()], "horizon = -1"),
         (vec![good.display().to_string(), "--drivers".into(), ",".into()], "driver set is empty"),
+        (
+            ["--time-model", "discrete", "--horizon", "1", "--drivers", "1,3"]
+                .iter()
+                .map(|s| s.to_string())
+                .chain([good.display().to_string()])
+                .collect(),
+            "rank at most drivers x steps = 2 < 4 nodes",
+        ),
+        // A 40-node path driven from one end: condition far above the limit.
+        (
+            vec![
+                chain.display().to_string(),
+                "--drivers".into(),
+                "1".into(),
+                "--states".into(),
+                chain_states.display().to_string(),
+            ],
+            "the controllability Gramian is numerically singular",
+        ),
     ];
     let states = write(p, "s.csv", "1,0,0,0\n0,0,1,1\n");
     for (i, (args, want)) in cases.iter().enumerate() {
@@ -310,11 +350,11 @@ fn node_metrics_match_numpy_power_series_and_eigh() {
 }
 
 #[test]
-fn a_single_driver_on_a_long_chain_warns_instead_of_returning_nan() {
+fn a_single_driver_on_a_long_chain_is_refused_with_its_condition() {
     // A path of 40 nodes driven from one end: the Gramian's condition number
     // grows exponentially with the distance from the driver (a known property
-    // of chains; no published value is used), so the result must either be
-    // refused as singular or carry a warning, never a silent NaN.
+    // of chains; no published value is used), far beyond the limit, so the
+    // result must be a typed refusal carrying the condition, never output.
     let n = 40;
     let mut a = Array2::zeros((n, n));
     for i in 0..n - 1 {
@@ -326,13 +366,243 @@ fn a_single_driver_on_a_long_chain_warns_instead_of_returning_nan() {
     let sys = System::new(a.view(), false, &p.check(n).unwrap(), Par::Seq).unwrap();
     let x = Array2::from_shape_fn((n, 2), |(i, j)| if (i < n / 2) == (j == 0) { 1.0 } else { 0.0 });
     match energy_matrix(&sys, x.view()) {
-        Ok((e, info)) => {
-            assert!(info.gramian_condition > 1e12, "{info:?}");
-            assert!(info.warnings.iter().any(|w| w.contains("near-singular")), "{info:?}");
-            assert!(e.iter().all(|v| !v.is_nan()));
+        Err(ControlError::SingularGramian { condition, limit }) => {
+            assert!(condition > limit && limit == CONDITION_LIMIT, "{condition:e} vs {limit:e}");
         }
-        Err(err) => assert!(err.to_string().contains("numerically singular"), "{err}"),
+        other => panic!("expected SingularGramian, got {other:?}"),
     }
+    // The same rule refuses the optimal trajectory of the same system.
+    let t = optimal_transition(&sys, x.column(0), x.column(1), &[0.5]).unwrap_err();
+    assert!(matches!(t, ControlError::SingularGramian { .. }), "{t}");
+}
+
+/// A seeded random undirected network on n nodes with a ring, so none is isolated.
+fn random_network(n: usize, seed: u64) -> Array2<f64> {
+    use rand::{Rng, SeedableRng};
+    let mut rng = rand_chacha::ChaCha20Rng::seed_from_u64(seed);
+    let mut a = Array2::zeros((n, n));
+    for i in 0..n {
+        for j in (i + 1)..n {
+            if rng.random::<f64>() < 0.3 {
+                let w: f64 = rng.random();
+                a[[i, j]] = w;
+                a[[j, i]] = w;
+            }
+        }
+        let j = (i + 1) % n;
+        a[[i, j]] = f64::max(a[[i, j]], 0.1);
+        a[[j, i]] = a[[i, j]];
+    }
+    a
+}
+
+#[test]
+fn discrete_time_with_too_few_drivers_for_the_horizon_is_refused_by_its_rank_bound() {
+    // 30 of 94 nodes driven for T = 3 steps: W_T = CCᵀ with C = [B, ÃB, Ã²B]
+    // (n x 90) has rank <= 90 < 94 (linear algebra; no tolerance involved).
+    // Refused for every seed, before any arithmetic, with why and what to change.
+    let n = 94;
+    for seed in 0..4 {
+        let a = random_network(n, seed);
+        let mut p = SystemParams::new();
+        p.time_model = TimeModel::Discrete;
+        p.horizon = 3.0;
+        p.drivers = Drivers::Nodes((0..30).map(|i| (i * 3 + seed as usize) % n).collect());
+        let sys = System::new(a.view(), false, &p.check(n).unwrap(), Par::Seq).unwrap();
+        let x = Array2::from_shape_fn((n, 3), |(i, j)| ((i + 7 * j) % 5) as f64);
+        let e = energy_matrix(&sys, x.view()).unwrap_err();
+        assert!(
+            matches!(
+                e,
+                ControlError::RankDeficientGramian { drivers: 30, steps: 3, rank_bound: 90, nodes: 94, .. }
+            ),
+            "{e:?}"
+        );
+        let msg = e.to_string();
+        assert!(msg.contains("rank at most drivers x steps = 90 < 94 nodes"), "{msg}");
+        assert!(
+            msg.contains("at least 32 driver nodes, a horizon of at least 4 steps, or continuous time"),
+            "{msg}"
+        );
+        // The remedies it names do work here: 4 steps, or continuous time.
+        for (tm, t) in [(TimeModel::Discrete, 4.0), (TimeModel::Continuous, 3.0)] {
+            p.time_model = tm;
+            p.horizon = t;
+            let sys = System::new(a.view(), false, &p.check(n).unwrap(), Par::Seq).unwrap();
+            match energy_matrix(&sys, x.view()) {
+                Ok((_, info)) => assert!(info.gramian_condition <= CONDITION_LIMIT),
+                // A remedy may still leave the Gramian too ill-conditioned; then it says so.
+                Err(e) => assert!(matches!(e, ControlError::SingularGramian { .. }), "{e:?}"),
+            }
+        }
+    }
+}
+
+#[test]
+fn energies_that_overflow_are_an_error_not_output() {
+    // States of size 1e200 give energies ~1e400, beyond f64: refused with the
+    // (finite) state scale and the remedy, never returned as infinities.
+    let case = "continuous_symmetric_subset";
+    let sys = system(case, TimeModel::Continuous, drivers_for(case, "nodes"), false);
+    let x = load2(case, "states") * 1e200;
+    let e = energy_matrix(&sys, x.view()).unwrap_err();
+    match e {
+        ControlError::EnergyOverflow { state_norm_max, .. } => {
+            assert!(state_norm_max.is_finite() && state_norm_max > 1e200, "{state_norm_max:e}")
+        }
+        _ => panic!("expected EnergyOverflow, got {e:?}"),
+    }
+    assert!(e.to_string().contains("rescale the states"), "{e}");
+    eprintln!("refusal: {e}");
+}
+
+// ----- accuracy of the Gramian routes against a 60-digit reference ------
+
+/// Cases of tests/data/control/precision_*.npz inside the condition limit.
+const PRECISION: [&str; 7] = [
+    "sym_cont_1e5",
+    "sym_cont_1e9",
+    "sym_cont_1e11",
+    "sym_cont_1e12",
+    "dir_cont_1e8",
+    "dir_cont_1e12",
+    "sym_disc_1e12",
+];
+
+fn precision_system(case: &str) -> System {
+    let c = format!("precision_{case}");
+    let a = load2(&c, "adjacency");
+    let w = load1(&c, "drivers");
+    let mut p = SystemParams::new();
+    p.time_model = if scalar(&c, "discrete") == 1.0 { TimeModel::Discrete } else { TimeModel::Continuous };
+    p.horizon = scalar(&c, "horizon");
+    p.stability_offset = scalar(&c, "offset");
+    p.drivers = Drivers::Nodes((0..w.len()).filter(|&i| w[i] == 1.0).collect());
+    System::new(a.view(), scalar(&c, "directed") == 1.0, &p.check(a.nrows()).unwrap(), Par::Seq).unwrap()
+}
+
+/// max_ij |e_ij − r_ij| / |r_ij| (every energy of these cases is > 0).
+fn max_rel_entrywise(e: &Array2<f64>, r: &Array2<f64>) -> f64 {
+    e.iter().zip(r.iter()).fold(0.0f64, |m, (x, y)| m.max((x - y).abs() / y.abs()))
+}
+
+#[test]
+fn chosen_gramian_route_matches_a_60_digit_mpmath_reference_and_beats_forming_the_gramian() {
+    // Reference: mpmath 1.4.1 at 60 digits (tests/reference/make_control_precision_fixtures.py):
+    // closed-form / block-exponential / summed Gramian and rᵀW⁻¹r per pair.
+    // Bound on the chosen (factored) route: n·√κ·ε + 10·floor, where √κ = κ(R) is
+    // the condition of the triangular factor actually solved with and n·κ(R)·ε the
+    // textbook forward-error scale of a triangular solve (Higham 2002, §8.2); the
+    // floor is what rounding the input alone moves the energies (mpmath, recorded
+    // per case). Forming W_T instead is bounded only by κ·ε; each other route that
+    // applies is measured and the chosen one must not be worse.
+    for case in PRECISION {
+        let c = format!("precision_{case}");
+        let sys = precision_system(case);
+        let x = load2(&c, "states");
+        let want = load2(&c, "energy");
+        let (kappa, floor, n) = (scalar(&c, "condition"), scalar(&c, "floor"), sys.n() as f64);
+        let (e, info) = energy_matrix(&sys, x.view()).unwrap();
+        assert_eq!(info.route, Route::GramianFactor, "{case}");
+        // The condition number the refusal rule rests on, against mpmath's eigenvalues
+        // (relative 1e-3: κ(R)² from singular values is good to ~κ(R)·ε).
+        let kerr = (info.gramian_condition - kappa).abs() / kappa;
+        assert!(kerr < 1e-3, "{case}: condition {:.3e} vs mpmath {kappa:.3e}", info.gramian_condition);
+        let err = max_rel_entrywise(&e, &want);
+        let bound = n * kappa.sqrt() * f64::EPSILON + 10.0 * floor;
+        let mut line = format!(
+            "{case}: condition {kappa:.1e}, input floor {floor:.0e}; gramian-factor {err:.1e} (bound {bound:.0e})"
+        );
+        assert!(err <= bound, "{case}: relative error {err:e} > bound {bound:e}");
+        for other in [Route::ModalGramian, Route::BlockExponential, Route::PowerSum] {
+            match energy_matrix_by(&sys, x.view(), other) {
+                Ok((eo, _)) => {
+                    let eo_err = max_rel_entrywise(&eo, &want);
+                    line.push_str(&format!("; {} {eo_err:.1e}", other.name()));
+                    assert!(
+                        err <= eo_err,
+                        "{case}: chosen route {err:e} worse than {} {eo_err:e}",
+                        other.name()
+                    );
+                }
+                Err(ControlError::RouteUnavailable { .. }) => {}
+                Err(e) => line.push_str(&format!("; {} refused ({e})", other.name())),
+            }
+        }
+        eprintln!("{line}");
+    }
+}
+
+#[test]
+fn beyond_the_condition_limit_the_reference_case_is_refused() {
+    // mpmath gives κ(W_T) ≈ 1.4e13 > 1e-3/ε for this case: refused, carrying the
+    // condition, which agrees with mpmath's to 1e-3 relative.
+    let c = "precision_sym_cont_1e13";
+    let sys = precision_system("sym_cont_1e13");
+    let kappa = scalar(c, "condition");
+    assert!(kappa > CONDITION_LIMIT);
+    match energy_matrix(&sys, load2(c, "states").view()) {
+        Err(e @ ControlError::SingularGramian { condition, limit }) => {
+            eprintln!("refusal: {e}");
+            assert_eq!(limit, CONDITION_LIMIT);
+            assert!((condition - kappa).abs() < 1e-3 * kappa, "{condition:e} vs {kappa:e}");
+        }
+        other => panic!("expected SingularGramian, got {other:?}"),
+    }
+}
+
+#[test]
+fn asymmetry_equals_the_state_quadratic_forms_exactly_when_the_predicate_holds() {
+    // Closed form (DESIGN §5; derivation in `state_potentials`): symmetric Ã,
+    // B = βI: continuous E_ij − E_ji = 2(q_i − q_j)/β² with q = xᵀÃx; discrete
+    // p_j − p_i with p = (‖x‖² − ‖Ãx‖²)/β². Checked for several horizons and
+    // weights; tolerance 1e-10 of max |E| (a difference of energies computed
+    // to ~1e-15 relative on this well-conditioned B = cI system).
+    let case = "continuous_symmetric_all";
+    let a = load2(case, "adjacency");
+    let n = a.nrows();
+    let x = load2(case, "states");
+    for (tm, t, beta) in [
+        (TimeModel::Continuous, 0.5, 1.0),
+        (TimeModel::Continuous, 3.0, 2.0),
+        (TimeModel::Discrete, 1.0, 1.0),
+        (TimeModel::Discrete, 7.0, 0.5),
+    ] {
+        let mut p = SystemParams::new();
+        p.time_model = tm;
+        p.horizon = t;
+        p.drivers = if beta == 1.0 { Drivers::All } else { Drivers::Weights(vec![beta; n]) };
+        let sys = System::new(a.view(), false, &p.check(n).unwrap(), Par::Seq).unwrap();
+        assert!(sys.asymmetry_is_potential());
+        let (e, _) = energy_matrix(&sys, x.view()).unwrap();
+        let pot = state_potentials(&sys, x.view()).unwrap();
+        let q = state_quadratic_forms(&sys, x.view()).unwrap();
+        let scale = e.iter().fold(0.0f64, |m, v| m.max(v.abs()));
+        for i in 0..x.ncols() {
+            for j in 0..x.ncols() {
+                let d = e[[i, j]] - e[[j, i]];
+                assert!(
+                    (d - (pot[j] - pot[i])).abs() <= 1e-10 * scale,
+                    "{tm:?} T={t}: {d} vs {}",
+                    pot[j] - pot[i]
+                );
+                if tm == TimeModel::Continuous {
+                    let via_q = 2.0 * (q[i] - q[j]) / (beta * beta);
+                    assert!((d - via_q).abs() <= 1e-10 * scale, "{d} vs {via_q}");
+                }
+            }
+        }
+    }
+    // Not the exact case: partial drivers, or a directed network.
+    assert!(!system(
+        "continuous_symmetric_subset",
+        TimeModel::Continuous,
+        drivers_for("continuous_symmetric_subset", "nodes"),
+        false
+    )
+    .asymmetry_is_potential());
+    assert!(!system("continuous_directed_weights", TimeModel::Continuous, Drivers::All, true)
+        .asymmetry_is_potential());
 }
 
 #[test]

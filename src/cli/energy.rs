@@ -27,9 +27,12 @@ use std::process::ExitCode;
     Writes energy.csv (one row per ordered pair of states), energy_matrix.csv and asymmetry_matrix.csv \
     (rows: initial state, columns: target state), node_metrics.csv, qc.csv and control.json (parameters, \
     input digests, numerical quality). Nodes are numbered from 1.\n\n\
-    If a warning says the Gramian is near-singular, the chosen drivers cannot steer the network well within \
-    the horizon: add driver nodes (or use all), lengthen --horizon, or compare energies only within that \
-    driver set.")]
+    Results are refused (exit 2, nothing written) when the drivers cannot steer the network within the \
+    horizon to working precision: in discrete time when drivers x steps < regions (the Gramian's rank bound), \
+    when the Gramian's condition number exceeds 1e-3 / f64 epsilon (about 4.5e12), or when the optimal input \
+    misses its target by more than 1e-3 of the largest state norm. Add driver nodes (or use all), lengthen \
+    --horizon, or use continuous time. qc.csv and control.json record the condition, its limit and the \
+    terminal error (control.json also the route) of every result that passes.")]
 pub struct EnergyArgs {
     /// Connectome, PATH[:KEY]: square, non-negative; A[i, j] drives region i from region j.
     #[arg(value_name = "CONNECTOME")]
@@ -201,9 +204,22 @@ pub fn run(args: EnergyArgs) -> anyhow::Result<ExitCode> {
     let names: Vec<String> =
         conn.names.clone().unwrap_or_else(|| (1..=n).map(|i| format!("region_{i}")).collect());
     let nodes = tables::node_table(&names, valid.input_weights(), &metrics);
-    let mut qc_names = vec!["gramian_condition", "terminal_error_max", "state_norm_max", "spectral_radius"];
-    let mut qc_vals =
-        vec![info.gramian_condition, info.terminal_error_max, info.state_norm_max, sys.spectral_radius()];
+    let mut qc_names = vec![
+        "gramian_condition",
+        "gramian_condition_limit",
+        "terminal_error_max",
+        "terminal_error_relative",
+        "state_norm_max",
+        "spectral_radius",
+    ];
+    let mut qc_vals = vec![
+        info.gramian_condition,
+        info.condition_limit,
+        info.terminal_error_max,
+        info.terminal_error_relative,
+        info.state_norm_max,
+        sys.spectral_radius(),
+    ];
     if let Some((_, pi)) = &penalised {
         qc_names.extend(["penalised_costate_pivot_ratio", "penalised_terminal_error_max"]);
         qc_vals.extend([pi.costate_pivot_ratio, pi.terminal_error_max]);
@@ -249,9 +265,9 @@ pub fn run(args: EnergyArgs) -> anyhow::Result<ExitCode> {
         eprintln!("hierax: warning: {w}");
     }
     println!(
-        "{k} states x {k} transitions on {n} regions ({:?} route): Gramian condition {:.3e}, \
+        "{k} states x {k} transitions on {n} regions ({} route): Gramian condition {:.3e}, \
          terminal error up to {:.3e}; wrote {}",
-        info.route,
+        info.route.name(),
         info.gramian_condition,
         info.terminal_error_max,
         out.display()

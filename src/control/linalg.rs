@@ -10,6 +10,8 @@ use faer::linalg::cholesky::llt;
 use faer::linalg::evd;
 use faer::linalg::lu::partial_pivoting as lu;
 use faer::linalg::matmul::matmul;
+use faer::linalg::qr::no_pivoting as qr;
+use faer::linalg::svd;
 use faer::{Accum, Mat, MatRef, Par};
 use ndarray::{Array2, ArrayView2};
 
@@ -113,7 +115,8 @@ pub(crate) fn solve_lower(l: MatRef<'_, f64>, b: MatRef<'_, f64>, par: Par) -> M
     x
 }
 
-/// `(L Lᵀ)⁻¹ B` for a Cholesky factor `L`.
+/// `(L Lᵀ)⁻¹ B` for a Cholesky factor `L` (kept for the tests).
+#[cfg(test)]
 pub(crate) fn cholesky_solve(l: MatRef<'_, f64>, b: MatRef<'_, f64>, par: Par) -> Mat<f64> {
     let mut x = b.to_owned();
     let req = llt::solve::solve_in_place_scratch::<f64>(l.nrows(), b.ncols(), par);
@@ -151,6 +154,58 @@ pub(crate) fn lu_solve(a: MatRef<'_, f64>, b: MatRef<'_, f64>, par: Par) -> (Mat
     // triangular solves read only their own triangle.
     lu::solve::solve_in_place(f.as_ref(), f.as_ref(), perm, x.as_mut(), par, MemStack::new(&mut buf));
     (x, if pmax > 0.0 { pmin / pmax } else { 0.0 })
+}
+
+/// The upper-triangular factor `R` (n × n) of a Householder QR
+/// factorisation `A = QR` of an r × n matrix, so that `AᵀA = RᵀR`. When
+/// `r < n` the missing rows of `R` are zero. Backward stable: `R` is the
+/// exact factor of `A + δA` with `‖δA‖ ≲ ε‖A‖` (Golub & Van Loan 2013,
+/// Matrix Computations, §5.2), which is what keeps a factored Gramian's
+/// small eigenvalues accurate.
+pub(crate) fn qr_r(a: MatRef<'_, f64>, par: Par) -> Mat<f64> {
+    let (r, n) = a.shape();
+    let mut f = a.to_owned();
+    let size = r.min(n);
+    let mut out = Mat::<f64>::zeros(n, n);
+    if size == 0 {
+        return out;
+    }
+    let bs = qr::factor::recommended_block_size::<f64>(r, n);
+    let mut coeff = Mat::<f64>::zeros(bs, size);
+    let req = qr::factor::qr_in_place_scratch::<f64>(r, n, bs, par, Default::default());
+    let mut buf = MemBuffer::new(req);
+    qr::factor::qr_in_place(f.as_mut(), coeff.as_mut(), par, MemStack::new(&mut buf), Default::default());
+    for j in 0..n {
+        for i in 0..=j.min(size - 1) {
+            out[(i, j)] = f[(i, j)];
+        }
+    }
+    out
+}
+
+/// Singular values of a matrix, descending.
+pub(crate) fn singular_values(a: MatRef<'_, f64>, par: Par) -> Result<Vec<f64>, faer::linalg::svd::SvdError> {
+    let (m, n) = a.shape();
+    let size = m.min(n);
+    let mut s = Diag::<f64>::zeros(size);
+    let req = svd::svd_scratch::<f64>(
+        m,
+        n,
+        svd::ComputeSvdVectors::No,
+        svd::ComputeSvdVectors::No,
+        par,
+        Default::default(),
+    );
+    let mut buf = MemBuffer::new(req);
+    svd::svd(a, s.as_mut(), None, None, par, MemStack::new(&mut buf), Default::default())?;
+    let mut v: Vec<f64> = (0..size).map(|i| s.column_vector()[i]).collect();
+    v.sort_by(|x, y| y.total_cmp(x));
+    Ok(v)
+}
+
+/// Largest absolute row sum (the ∞-norm).
+pub(crate) fn norm_inf(a: MatRef<'_, f64>) -> f64 {
+    (0..a.nrows()).map(|i| (0..a.ncols()).map(|j| a[(i, j)].abs()).sum::<f64>()).fold(0.0, f64::max)
 }
 
 /// Matrix 1-norm (max column sum of |a_ij|).

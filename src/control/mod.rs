@@ -40,11 +40,16 @@
 //! (Pasqualetti et al. 2014, IEEE Trans. Control Netw. Syst.; Gu et al. 2015).
 //!
 //! # Numerical quality
-//! Every energy result carries an [`EnergyInfo`]: the Gramian's condition
-//! number, the largest terminal-state error `‖x(T) − x_f‖` over all pairs,
-//! and warnings. A near-singular Gramian (condition above
-//! [`energy::CONDITION_WARNING`]) is reported, never hidden: add drivers,
-//! lengthen the horizon, or compare energies only within that driver set.
+//! Every energy result carries an [`EnergyInfo`]: the route, the Gramian's
+//! condition number and the largest terminal-state error `‖x(T) − x_f‖`
+//! over all pairs. One rule refuses a result, the same for every caller
+//! (see [`energy`]): a discrete-time Gramian whose rank is bounded below `n`
+//! by drivers × steps, a condition number above
+//! [`energy::CONDITION_LIMIT`] `= 10⁻³/ε`, or a terminal error above
+//! [`energy::TERMINAL_TOLERANCE`] of the state scale is an error, never a
+//! warning with output. Gramians with partial driver sets are built in
+//! square-root form (`W_T = RᵀR` by orthogonal updates, [`Route::GramianFactor`]),
+//! which keeps about `√κ·ε` relative accuracy where forming `W_T` keeps `κ·ε`.
 //!
 //! # Outputs
 //! Results are plain arrays (`ndarray`) with their info structs; [`tables`]
@@ -60,6 +65,7 @@
 
 pub mod energy;
 mod error;
+mod factor;
 pub(crate) mod linalg;
 pub mod metrics;
 mod params;
@@ -69,7 +75,10 @@ mod system;
 pub mod tables;
 pub mod trajectory;
 
-pub use energy::{asymmetry, energy_matrix, minimum_energy, EnergyInfo, Route};
+pub use energy::{
+    asymmetry, energy_matrix, energy_matrix_by, minimum_energy, select_route, state_potentials,
+    state_quadratic_forms, EnergyInfo, Route,
+};
 pub use error::ControlError;
 
 pub use faer::Par;

@@ -143,6 +143,16 @@ impl System {
         self.eig.is_some()
     }
 
+    /// Whether the energy asymmetry of this system is exactly a potential
+    /// difference: Ã symmetric and every node driven with one equal weight
+    /// (`B = βI`). Then `E_ij − E_ji = p_j − p_i` for every horizon, with
+    /// `p` from [`super::energy::state_potentials`] (continuous time:
+    /// `2(q_i − q_j)/β²` with [`super::state_quadratic_forms`]).
+    pub fn asymmetry_is_potential(&self) -> bool {
+        let w = &self.params.input_weights;
+        self.eig.is_some() && w[0] > 0.0 && w.iter().all(|v| *v == w[0])
+    }
+
     /// The normalised matrix Ã.
     pub fn normalised(&self) -> Array2<f64> {
         linalg::to_nd(self.a.as_ref())

@@ -1,6 +1,6 @@
 //! The optimal input of one transition, its trajectory and node-wise energy.
 
-use super::energy::check_states;
+use super::energy::{check_states, norm2, select_route, within, Whitening, TERMINAL_TOLERANCE};
 use super::linalg;
 use super::system::{gram_kernel, gramian_van_loan, mode_transition, System};
 use super::{ControlError, TimeModel};
@@ -40,7 +40,9 @@ pub struct Trajectory {
 /// # Errors
 /// [`ControlError::States`] for states of the wrong length or non-finite;
 /// [`ControlError::Param`] for a time outside `[0, T]`;
-/// [`ControlError::SingularGramian`] as in [`super::energy_matrix`].
+/// [`ControlError::RankDeficientGramian`], [`ControlError::SingularGramian`]
+/// and [`ControlError::TerminalMiss`] by the same rule as
+/// [`super::energy_matrix`] (the same Gramian route and limits).
 pub fn optimal_transition(
     sys: &System,
     x0: ArrayView1<'_, f64>,
@@ -63,18 +65,32 @@ pub fn optimal_transition(
     let t_end = sys.params.horizon;
     let tm = sys.params.time_model;
     let b: Vec<f64> = sys.params.input_weights.clone();
-    let w = sys.gramian_faer(t_end);
+    // The Gramian factor and the refusal rule shared with `energy_matrix`.
+    let wh = Whitening::new(sys, select_route(sys))?;
     let phi = sys.transition_faer(t_end);
     let x0m = Mat::from_fn(n, 1, |i, _| x0[i]);
     let px0 = linalg::mul(phi.as_ref(), x0m.as_ref(), par);
     let r = Mat::from_fn(n, 1, |i, _| xf[i] - px0[(i, 0)]);
-    let ev = linalg::sym_eigenvalues(w.as_ref(), par).map_err(|e| ControlError::Eigen(format!("{e:?}")))?;
-    let cond = if ev[0] > 0.0 { ev[n - 1] / ev[0] } else { f64::INFINITY };
-    let l = linalg::cholesky(w.as_ref(), par).ok_or(ControlError::SingularGramian { condition: cond })?;
-    let nu = linalg::cholesky_solve(l.as_ref(), r.as_ref(), par);
-    let energy: f64 = (0..n).map(|i| r[(i, 0)] * nu[(i, 0)]).sum();
-    let wnu = linalg::mul(w.as_ref(), nu.as_ref(), par);
+    let z = wh.half_solve(wh.to_working(sys, r.as_ref()).as_ref());
+    let nu_w = wh.half_solve_transpose(z.as_ref());
+    let energy: f64 = (0..n).map(|i| z[(i, 0)].powi(2)).sum();
+    let wnu = wh.to_node_basis(sys, wh.gram_apply(nu_w.as_ref()).as_ref());
+    let nu = wh.to_node_basis(sys, nu_w.as_ref());
     let terminal_error = (0..n).map(|i| (px0[(i, 0)] + wnu[(i, 0)] - xf[i]).powi(2)).sum::<f64>().sqrt();
+    // The same scale as `energy_matrix` on the two states: the larger norm.
+    let scale = norm2(x0.iter().copied()).max(norm2(xf.iter().copied()));
+    let relative = if scale > 0.0 { terminal_error / scale } else { terminal_error };
+    if !terminal_error.is_finite() || !energy.is_finite() {
+        return Err(ControlError::EnergyOverflow { state_norm_max: scale, condition: wh.condition });
+    }
+    if !within(relative, TERMINAL_TOLERANCE) {
+        return Err(ControlError::TerminalMiss {
+            terminal_error,
+            relative,
+            tolerance: TERMINAL_TOLERANCE,
+            condition: wh.condition,
+        });
+    }
 
     if tm == TimeModel::Discrete {
         let steps = t_end as usize;
