@@ -461,3 +461,141 @@ fn min_frames_rule_marks_regions_and_cli_refuses_when_none_remain() {
     let res = estimate_timescales(data.view(), &names, Some(&valid), &[], &p.check(n).unwrap()).unwrap();
     assert!(res.regions.iter().all(|r| r.status == RegionStatus::Ok));
 }
+
+#[test]
+fn implausible_fits_are_flagged_and_never_reported() {
+    // Planted absurd fits (issue 9): white noise (no decay to fit) and
+    // anti-correlated AR(1) (phi = -0.6: an alternating ACF that a decaying
+    // exponential can only match with a <= 0 or a tiny tau), against clean
+    // AR(1) (phi = 0.8, whose ACF phi^k is the exponential model itself).
+    // 240 frames at TR 2 s (the demo's protocol); five seeds, 40 regions each.
+    let (n, tr, per) = (240usize, 2.0, 40usize);
+    let bounds = hierax::timescale::TauBounds::new(tr, n);
+    // Per group (white, anti-correlated, clean): exp fits ok, exp fits implausible.
+    let mut exp_ok_n = [0usize; 3];
+    let mut exp_implausible = [0usize; 3];
+    for seed in [1u64, 2, 3, 4, 5] {
+        let mut rng = ChaCha8Rng::seed_from_u64(seed);
+        let mut data = Array2::<f64>::zeros((n, 3 * per));
+        for j in 0..3 * per {
+            let phi = [0.0, -0.6, 0.8][j / per];
+            data.column_mut(j).assign(&ndarray::Array1::from(ar1(n, phi, &mut rng)));
+        }
+        let names: Vec<String> = (0..3 * per).map(|j| format!("r{j}")).collect();
+        let mut p = TimescaleParams::new(tr);
+        p.bias_correction = BiasCorrection::Ar1;
+        let res = estimate_timescales(data.view(), &names, None, &[], &p.check(n).unwrap()).unwrap();
+        let exp_tau = res.column_values("exp_tau_s").unwrap();
+        let knee_tau = res.column_values("knee_tau_s").unwrap();
+        let ar1_tau = res.column_values("ar1_tau_s").unwrap();
+        for (j, r) in res.regions.iter().enumerate() {
+            let e = &r.estimates;
+            // The invariant: status ok <=> a reported, plausible value.
+            let exp_ok = e.status_of(Estimator::ExpFit) == hierax::timescale::EstimateStatus::Ok;
+            if let Some(f) = e.exp {
+                assert_eq!(exp_ok, f.amplitude > 0.0 && bounds.contains(f.tau_s), "region {j}: {f:?}");
+            }
+            assert_eq!(exp_ok, exp_tau[j].is_finite(), "region {j}");
+            if exp_ok {
+                assert!(exp_tau[j] >= tr / 10.0 && exp_tau[j] <= n as f64 * tr);
+            }
+            let knee_ok = e.status_of(Estimator::SpectralKnee) == hierax::timescale::EstimateStatus::Ok;
+            if let Some(k) = e.knee {
+                let inside = k.knee_hz >= k.band_fitted_hz.0 && k.knee_hz <= k.band_fitted_hz.1;
+                assert_eq!(knee_ok, inside && bounds.contains(k.tau_s), "region {j}: {k:?}");
+            }
+            assert_eq!(knee_ok, knee_tau[j].is_finite());
+            assert_eq!(e.ar1_status == hierax::timescale::EstimateStatus::Ok, ar1_tau[j].is_finite());
+            exp_ok_n[j / per] += exp_ok as usize;
+            exp_implausible[j / per] += (e.status_of(Estimator::ExpFit)
+                == hierax::timescale::EstimateStatus::ImplausibleFit)
+                as usize;
+        }
+    }
+    eprintln!("exp fits ok per group (white, anti, AR(1)) {exp_ok_n:?}, implausible {exp_implausible:?}");
+    // Measured (seeds 1-5): ok [29, 0, 200], implausible [83, 42, 0]. The
+    // planted absurd fits are caught: an anti-correlated series never yields
+    // an ok exponential timescale, and both planted kinds produce flagged
+    // (converged but implausible) fits.
+    assert_eq!(exp_ok_n[1], 0, "an anti-correlated series gave an ok exponential timescale");
+    assert!(exp_implausible[0] > 0 && exp_implausible[1] > 0, "{exp_implausible:?}");
+    // A clean AR(1) fit stays ok (every seed, every region).
+    assert_eq!((exp_ok_n[2], exp_implausible[2]), (5 * per, 0));
+}
+
+#[test]
+fn flags_count_only_the_estimators_in_use() {
+    // Issue 9: a region whose initial positive sum is fine but whose knee fit
+    // fails must not be flagged for a consumer of `ips_tau_s`.
+    use hierax::timescale::{column_source, ColumnSource, EstimateStatus, TimescaleError};
+    for (col, src) in [
+        ("ips_tau_s", ColumnSource::Estimator(Estimator::InitialPositiveSum)),
+        ("acw50_interp_s", ColumnSource::Estimator(Estimator::Acw50)),
+        ("acw0_s", ColumnSource::Estimator(Estimator::Acw0)),
+        ("exp_tau_s", ColumnSource::Estimator(Estimator::ExpFit)),
+        ("knee_tau_s", ColumnSource::Estimator(Estimator::SpectralKnee)),
+        ("ar1_tau_corrected_s", ColumnSource::Ar1),
+    ] {
+        assert_eq!(column_source(col), Some(src), "{col}");
+    }
+    assert_eq!(column_source("exp_amplitude"), None);
+
+    // White noise and AR(1) at 240 frames (seed 11): the initial positive
+    // sum almost never fails on them, the fits often do on white noise.
+    let (n, tr) = (240usize, 2.0);
+    let mut rng = ChaCha8Rng::seed_from_u64(11);
+    let mut data = Array2::<f64>::zeros((n, 60));
+    for j in 0..60 {
+        let phi = if j < 30 { 0.0 } else { 0.7 };
+        data.column_mut(j).assign(&ndarray::Array1::from(ar1(n, phi, &mut rng)));
+    }
+    data.column_mut(59).fill(1.0); // one constant region: flagged for every consumer
+    let names: Vec<String> = (0..60).map(|j| format!("r{j}")).collect();
+    let p = TimescaleParams::new(tr);
+    let res = estimate_timescales(data.view(), &names, None, &[], &p.check(n).unwrap()).unwrap();
+    let ips = ColumnSource::Estimator(Estimator::InitialPositiveSum);
+    let knee = ColumnSource::Estimator(Estimator::SpectralKnee);
+    // Naive count, straight from the per-region statuses.
+    let naive = |srcs: &[ColumnSource]| {
+        res.regions
+            .iter()
+            .filter(|r| {
+                r.status != RegionStatus::Ok
+                    || srcs.iter().any(|&s| r.estimates.status_of_source(s) != EstimateStatus::Ok)
+            })
+            .count()
+    };
+    let (n_ips, n_knee, n_all) = (res.n_flagged_for(&[ips]), res.n_flagged_for(&[knee]), res.n_flagged());
+    eprintln!("flagged: ips {n_ips}, knee {n_knee}, any estimator {n_all}");
+    assert_eq!(n_ips, naive(&[ips]));
+    assert_eq!(n_knee, naive(&[knee]));
+    assert_eq!(n_all, naive(&res.selected_sources()));
+    assert!(n_ips < n_all, "knee and fit failures still flag ips consumers");
+    assert!(n_ips >= 1); // the constant region
+                         // The overall status of a table made for ips consumers names only ips.
+    let t = res.to_table_for(&[ips]);
+    let status = match t.column("status").unwrap() {
+        hierax::io::table::Column::Str(s) => s.clone(),
+        _ => unreachable!(),
+    };
+    assert_eq!(status.iter().filter(|s| *s != "ok").count(), n_ips);
+    assert!(
+        status.iter().all(|s| s == "ok" || s.starts_with("ips:") || s == "constant_signal"),
+        "{status:?}"
+    );
+    // Values: NaN exactly where the column's status (or the region's) is not ok.
+    let v = res.column_values("ips_tau_s").unwrap();
+    let st = res.column_statuses("ips_tau_s").unwrap();
+    for (x, s) in v.iter().zip(&st) {
+        assert_eq!(x.is_finite(), *s == "ok");
+    }
+    assert_eq!(st[59], "constant_signal");
+    // A column that is not there is a typed error naming the choices.
+    match res.column_values("ar1_tau_s") {
+        Err(TimescaleError::UnknownColumn { column, expected }) => {
+            assert_eq!(column, "ar1_tau_s");
+            assert!(expected.contains("ips_tau_s") && expected.contains("knee_tau_s"), "{expected}");
+        }
+        other => panic!("expected UnknownColumn, got {other:?}"),
+    }
+}

@@ -44,7 +44,15 @@
 //!
 //! **Quality control.** Each region gets a [`RegionStatus`] and each
 //! estimator an [`EstimateStatus`]; a NaN in the output always has a non-ok
-//! status beside it.
+//! status beside it, and a timescale is reported only with status ok. A
+//! fitted or model-based timescale (exponential fit, spectral knee, AR(1))
+//! is ok only when it is plausible: $\mathrm{TR}/10\le\tau\le
+//! N_{\rm valid}\mathrm{TR}$ ([`TauBounds`], our choice), a positive
+//! amplitude for the exponential fit, and a knee inside the fitted band;
+//! otherwise it is `implausible_fit`. A consumer that uses one timescale
+//! column reads it with [`TimescaleResult::column_values`] (NaN unless ok)
+//! and counts flags with [`TimescaleResult::n_flagged_for`] over the
+//! [`ColumnSource`] of that column ([`column_source`]).
 //!
 //! Research software: results are not for clinical decisions.
 
@@ -58,9 +66,12 @@ pub mod preprocess;
 pub mod welch;
 
 pub use acf::{autocorrelation, masked_autocorrelation, AcfPlan};
-pub use algorithm::{estimate_timescales, RegionEstimates, RegionResult, RegionStatus, TimescaleResult};
+pub use algorithm::{
+    column_source, estimate_timescales, ColumnSource, RegionEstimates, RegionResult, RegionStatus,
+    TimescaleResult,
+};
 pub use error::TimescaleError;
-pub use estimators::{EstimateStatus, ExpFit, FitLags, KneeFit};
+pub use estimators::{EstimateStatus, ExpFit, FitLags, KneeFit, TauBounds};
 pub use params::{BiasCorrection, Estimator, TimescaleParams, ValidTimescaleParams};
 pub use preprocess::{censor_from_displacement, Confound, NuisanceModel, NuisanceSpec};
 pub use welch::{welch_density, WelchPlan};
