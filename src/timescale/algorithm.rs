@@ -8,7 +8,7 @@ use super::estimators::{
 };
 use super::params::{BiasCorrection, Estimator, ValidTimescaleParams};
 use super::preprocess::{Confound, NuisanceModel};
-use super::welch::WelchPlan;
+use super::welch::{welch_segment_default, WelchPlan};
 use super::TimescaleError;
 use crate::io::table::{Column, Table};
 use ndarray::ArrayView2;
@@ -234,6 +234,11 @@ pub struct TimescaleResult {
     pub n_valid_frames: usize,
     /// One entry per region, in input order.
     pub regions: Vec<RegionResult>,
+    /// Welch segment length used by the spectral knee, frames (`None` when
+    /// the knee was not selected): the given one, or the shared rule
+    /// [`welch_segment_default`](super::welch::welch_segment_default) applied
+    /// to this series' censoring mask.
+    pub welch_segment_frames: Option<usize>,
 }
 
 impl TimescaleResult {
@@ -512,7 +517,12 @@ pub fn estimate_timescales(
     let mut plan = AcfPlan::new(n, params.max_lag)?;
     let pairs = plan.pair_counts(valid);
     let knee = params.has(Estimator::SpectralKnee);
-    let welch = if knee { Some(WelchPlan::new(params.welch_segment, params.tr_s)?) } else { None };
+    let welch_segment_frames = knee
+        .then(|| params.welch_segment.unwrap_or_else(|| welch_segment_default(n, censored.then_some(valid))));
+    let welch = match welch_segment_frames {
+        Some(l) => Some(WelchPlan::new(l, params.tr_s)?),
+        None => None,
+    };
     let freqs = welch.as_ref().map(|w| w.frequencies_hz()).unwrap_or_default();
     let ws0 = Workspace {
         acf_plan: plan.clone(),
@@ -585,7 +595,13 @@ pub fn estimate_timescales(
         },
         None => run(),
     };
-    Ok(TimescaleResult { params: params.clone(), n_frames: n, n_valid_frames: n_valid, regions })
+    Ok(TimescaleResult {
+        params: params.clone(),
+        n_frames: n,
+        n_valid_frames: n_valid,
+        regions,
+        welch_segment_frames,
+    })
 }
 
 #[allow(clippy::too_many_arguments)]

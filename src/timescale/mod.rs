@@ -21,7 +21,8 @@
 //!   plain or linearly interpolated (Honey et al. 2012; Golesorkhi et al. 2021);
 //! * exponential decay $\hat\rho_k\approx a(e^{-k\mathrm{TR}/\tau}+b)$ fitted
 //!   by least squares over a stated lag range (Murray et al. 2014);
-//! * spectral knee: Welch spectrum, fit of $\log_{10}P(f)=b-\log_{10}(k+f^\chi)$,
+//! * spectral knee: Welch spectrum (segment length by one rule shared by
+//!   every command, [`welch_segment_default`]), fit of $\log_{10}P(f)=b-\log_{10}(k+f^\chi)$,
 //!   $\tau=1/(2\pi k^{1/\chi})$ (Gao et al. 2020);
 //! * optionally the AR(1) timescale $-\mathrm{TR}/\ln\hat\rho_1$ with the
 //!   Marriott & Pope (1954) bias correction of $\hat\rho_1$.
@@ -74,4 +75,4 @@ pub use error::TimescaleError;
 pub use estimators::{EstimateStatus, ExpFit, FitLags, KneeFit, TauBounds};
 pub use params::{BiasCorrection, Estimator, TimescaleParams, ValidTimescaleParams};
 pub use preprocess::{censor_from_displacement, Confound, NuisanceModel, NuisanceSpec};
-pub use welch::{welch_density, WelchPlan};
+pub use welch::{segment_starts, welch_density, welch_segment_default, WelchPlan};
