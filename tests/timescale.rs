@@ -613,10 +613,11 @@ fn csv_column(path: &std::path::Path, name: &str) -> Vec<f64> {
 fn demo_knee_is_the_same_from_the_command_and_the_subject_job() {
     // Issue 9: one Welch segment rule for every path. Invented demo subject
     // sub-01 (240 frames, TR 2 s), censoring FD > 0.5 mm with no extra
-    // frames in both paths. The per-subject job is run through the library
-    // with `welch_segment: None` (the shared rule).
-    use hierax::cohort::subject::{run_subject, SubjectConfig, SubjectInputs};
+    // frames in both paths (the job's defaults). The per-subject job's
+    // timescale stage is run through the library with its defaults
+    // (`welch_segment: None`, the shared rule).
     use hierax::io::InputSpec;
+    use hierax::subject::{stages, LoadedSubject, SubjectConfig, SubjectInputs};
     let root = crate::util::repo_root().join("demo-data");
     let sub = root.join("sub-01");
     let dir = tempfile::tempdir().unwrap();
@@ -642,32 +643,37 @@ fn demo_knee_is_the_same_from_the_command_and_the_subject_job() {
         hemisphere: None,
         covariates: Default::default(),
     };
-    let mut cfg = SubjectConfig::new(2.0);
-    cfg.welch_segment = None;
-    let job_out = dir.path().join("job");
-    let report = run_subject(&inputs, &cfg, &job_out).unwrap();
-    let job_csv = job_out.join(
-        crate::util::files_below(&job_out)
-            .into_iter()
-            .find(|p| p.to_string_lossy().ends_with("sub-01_timescales.csv"))
-            .expect("the job writes its timescales table"),
-    );
+    let cfg = SubjectConfig::new(2.0);
+    assert_eq!((cfg.welch_segment, cfg.fd_threshold_mm, cfg.censor_after), (None, Some(0.5), 0));
+    let cfg = cfg.check().unwrap();
+    let loaded = LoadedSubject::load(&inputs, &cfg).unwrap();
+    let stage = stages::timescales(&loaded, &cfg).unwrap();
+    let job = stage.result.to_table();
     let json: Value =
         serde_json::from_str(&std::fs::read_to_string(cli_out.join("timescales.json")).unwrap()).unwrap();
-    let seg = json["summary"]["welch_segment_frames"].as_u64().unwrap();
-    assert_eq!(json["summary"]["n_valid_frames"].as_u64().unwrap() as usize, report.n_valid_frames);
+    let seg = json["summary"]["welch_segment_frames"].as_u64().unwrap() as usize;
+    assert_eq!(Some(seg), stage.result.welch_segment_frames);
+    assert_eq!(json["summary"]["n_valid_frames"].as_u64().unwrap() as usize, stage.result.n_valid_frames);
+    let cli_csv = cli_out.join("timescales.csv");
     for col in ["knee_tau_s", "knee_hz", "knee_exponent", "ips_tau_s", "exp_tau_s"] {
-        let (a, b) = (csv_column(&cli_out.join("timescales.csv"), col), csv_column(&job_csv, col));
-        assert_eq!(a.len(), 100);
-        for (i, (x, y)) in a.iter().zip(&b).enumerate() {
+        let a = csv_column(&cli_csv, col);
+        let Some(hierax::io::table::Column::F64(b)) = job.column(col) else {
+            panic!("job table lacks {col}")
+        };
+        assert_eq!((a.len(), b.len()), (100, 100));
+        for (i, (x, y)) in a.iter().zip(b).enumerate() {
             // Same arithmetic on the same data: identical to the last bit
-            // (both print shortest round-trip decimals).
+            // (the CSV prints shortest round-trip decimals).
             assert!(x.to_bits() == y.to_bits() || (x.is_nan() && y.is_nan()), "{col} region {i}: {x} vs {y}");
         }
     }
-    let finite = csv_column(&job_csv, "knee_tau_s").iter().filter(|v| v.is_finite()).count();
+    // The job's linked column is the table's, NaN exactly where not ok.
+    assert_eq!(stage.column, "ips_tau_s");
+    let ips = stage.result.column_values("ips_tau_s").unwrap();
+    assert!(ips.iter().zip(&stage.tau).all(|(x, y)| x.to_bits() == y.to_bits()));
+    let finite = csv_column(&cli_csv, "knee_tau_s").iter().filter(|v| v.is_finite()).count();
     eprintln!(
         "sub-01: {} valid frames, Welch segment {seg} frames, {finite} of 100 knees ok",
-        report.n_valid_frames
+        stage.result.n_valid_frames
     );
 }
