@@ -116,7 +116,8 @@ pub fn autocorrelation_window(acf: &[f64], threshold: f64, tr_s: f64) -> Result<
     Ok((k as f64 * tr_s, ((k - 1) as f64 + frac) * tr_s))
 }
 
-/// Sum of the initial positive ACF times TR (Watanabe et al. 2019, Nat Commun):
+/// Sum of the initial positive ACF times TR (Watanabe, Rees & Masuda 2019,
+/// eLife 8:e42256; journal and article number from memory):
 ///
 /// $$\tau=\mathrm{TR}\sum_{k=1}^{K-1}\hat\rho_k,\qquad K=\min\{k\ge1:\hat\rho_k\le0\}$$
 ///

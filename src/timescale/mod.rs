@@ -16,7 +16,8 @@
 //!
 //! **Estimators** ([`estimators`]), all in seconds (TR `tr_s` in seconds):
 //! * initial positive sum $\mathrm{TR}\sum_{k=1}^{K-1}\hat\rho_k$, $K$ the
-//!   first lag with $\hat\rho_K\le0$ (Watanabe et al. 2019);
+//!   first lag with $\hat\rho_K\le0$ (Watanabe, Rees & Masuda 2019, eLife
+//!   8:e42256; journal and article number from memory);
 //! * ACW-50 and ACW-0, the first lag where $\hat\rho\le0.5$ or $\le0$,
 //!   plain or linearly interpolated (Honey et al. 2012; Golesorkhi et al. 2021);
 //! * exponential decay $\hat\rho_k\approx a(e^{-k\mathrm{TR}/\tau}+b)$ fitted

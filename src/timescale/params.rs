@@ -11,7 +11,7 @@ use serde::Serialize;
 #[serde(rename_all = "kebab-case")]
 #[non_exhaustive]
 pub enum Estimator {
-    /// Sum of the initial positive ACF × TR (Watanabe et al. 2019).
+    /// Sum of the initial positive ACF × TR (Watanabe, Rees & Masuda 2019, eLife).
     InitialPositiveSum,
     /// Lag where the ACF first drops to 0.5 (Honey et al. 2012).
     Acw50,
