@@ -427,6 +427,24 @@ fn moran_pairs_keep_morans_i_on_mirrored_hemispheres() {
 
 // ---- the binary ----
 
+#[test]
+fn surrogates_help_states_the_known_limits() {
+    // Issue 9: the help says where the variogram fit error is measured and
+    // that spin p-values run slightly liberal at ~50 parcels per hemisphere.
+    let o = run(hierax().args(["surrogates", "--help"]));
+    assert!(o.status.success());
+    // Help text wraps at the terminal width: compare with whitespace collapsed.
+    let text = String::from_utf8_lossy(&o.stdout).split_whitespace().collect::<Vec<_>>().join(" ");
+    for needle in [
+        "is measured after rank-matching",
+        "Spin p-values run slightly liberal at about 50 parcels per hemisphere",
+        "about 6 % of p-values between independent smooth random fields fell below 0.05 at alpha = 0.05",
+        "paired from the largest down",
+    ] {
+        assert!(text.contains(needle), "help lacks {needle:?}");
+    }
+}
+
 fn assert_usage_error(args: &[&str], dir: &std::path::Path, needle: &str) {
     let out_dir = dir.join("out");
     let out = run(hierax().args(args).arg("--out").arg(&out_dir));
