@@ -539,6 +539,22 @@ fn flags_count_only_the_estimators_in_use() {
         assert_eq!(column_source(col), Some(src), "{col}");
     }
     assert_eq!(column_source("exp_amplitude"), None);
+    // The columns the per-subject job can link, and their estimators.
+    use hierax::timescale::column_estimator;
+    for (col, e) in [
+        ("ips_tau_s", Estimator::InitialPositiveSum),
+        ("acw50_s", Estimator::Acw50),
+        ("acw50_interp_s", Estimator::Acw50),
+        ("acw0_s", Estimator::Acw0),
+        ("acw0_interp_s", Estimator::Acw0),
+        ("exp_tau_s", Estimator::ExpFit),
+        ("knee_tau_s", Estimator::SpectralKnee),
+    ] {
+        assert_eq!(column_estimator(col), Some(e), "{col}");
+    }
+    for col in ["ar1_tau_s", "ar1_tau_corrected_s", "knee_hz", "tau"] {
+        assert_eq!(column_estimator(col), None, "{col}");
+    }
 
     // White noise and AR(1) at 240 frames (seed 11): the initial positive
     // sum almost never fails on them, the fits often do on white noise.
@@ -571,8 +587,9 @@ fn flags_count_only_the_estimators_in_use() {
     assert_eq!(n_knee, naive(&[knee]));
     assert_eq!(n_all, naive(&res.selected_sources()));
     assert!(n_ips < n_all, "knee and fit failures still flag ips consumers");
-    assert!(n_ips >= 1); // the constant region
-                         // The overall status of a table made for ips consumers names only ips.
+    // At least the constant region.
+    assert!(n_ips >= 1);
+    // The overall status of a table made for ips consumers names only ips.
     let t = res.to_table_for(&[ips]);
     let status = match t.column("status").unwrap() {
         hierax::io::table::Column::Str(s) => s.clone(),

@@ -99,6 +99,21 @@ pub fn column_source(column: &str) -> Option<ColumnSource> {
     ColumnSource::ALL.into_iter().find(|s| s.columns().contains(&column))
 }
 
+/// The [`Estimator`] behind timescale column `column`: `ips_tau_s` →
+/// initial positive sum; `acw50_s`, `acw50_interp_s` → ACW-50; `acw0_s`,
+/// `acw0_interp_s` → ACW-0; `exp_tau_s` → exponential fit; `knee_tau_s` →
+/// spectral knee. `None` for any other name, including the AR(1) columns
+/// (their source is [`ColumnSource::Ar1`], see [`column_source`]). A
+/// consumer reads the column with [`TimescaleResult::column_values`] (NaN
+/// unless the region and this estimator are ok) and counts its flags with
+/// [`TimescaleResult::n_flagged_for`]`(&[ColumnSource::Estimator(e)])`.
+pub fn column_estimator(column: &str) -> Option<Estimator> {
+    match column_source(column)? {
+        ColumnSource::Estimator(e) => Some(e),
+        ColumnSource::Ar1 => None,
+    }
+}
+
 /// Every estimate for one region (NaN where not selected or failed; the
 /// matching status says which). The fits are kept even when their status is
 /// [`EstimateStatus::ImplausibleFit`], for inspection; [`RegionEstimates::value`]
@@ -236,7 +251,7 @@ pub struct TimescaleResult {
     pub regions: Vec<RegionResult>,
     /// Welch segment length used by the spectral knee, frames (`None` when
     /// the knee was not selected): the given one, or the shared rule
-    /// [`welch_segment_default`](super::welch::welch_segment_default) applied
+    /// [`welch_segment_default`] applied
     /// to this series' censoring mask.
     pub welch_segment_frames: Option<usize>,
 }

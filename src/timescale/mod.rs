@@ -54,7 +54,8 @@
 //! otherwise it is `implausible_fit`. A consumer that uses one timescale
 //! column reads it with [`TimescaleResult::column_values`] (NaN unless ok)
 //! and counts flags with [`TimescaleResult::n_flagged_for`] over the
-//! [`ColumnSource`] of that column ([`column_source`]).
+//! [`ColumnSource`] of that column ([`column_source`]; its [`Estimator`] by
+//! [`column_estimator`]).
 //!
 //! Research software: results are not for clinical decisions.
 
@@ -69,8 +70,8 @@ pub mod welch;
 
 pub use acf::{autocorrelation, masked_autocorrelation, AcfPlan};
 pub use algorithm::{
-    column_source, estimate_timescales, ColumnSource, RegionEstimates, RegionResult, RegionStatus,
-    TimescaleResult,
+    column_estimator, column_source, estimate_timescales, ColumnSource, RegionEstimates, RegionResult,
+    RegionStatus, TimescaleResult,
 };
 pub use error::TimescaleError;
 pub use estimators::{EstimateStatus, ExpFit, FitLags, KneeFit, TauBounds};
