@@ -292,7 +292,158 @@ fn morans_i_checkerboard_is_minus_one_and_randomisation_preserves_it() {
     assert!(worst < 0.05, "pair method moved Moran's I by {worst}");
 }
 
+/// Moran's I by the closed form, as a plain double loop (Moran 1950):
+/// I = (n / S0) sum_ij w_ij z_i z_j / sum_i z_i^2, z = x - mean(x).
+fn morans_i_naive(x: &[f64], w: &Array2<f64>) -> f64 {
+    let n = x.len();
+    let mean = x.iter().sum::<f64>() / n as f64;
+    let (mut num, mut s0, mut den) = (0.0, 0.0, 0.0);
+    for i in 0..n {
+        den += (x[i] - mean) * (x[i] - mean);
+        for j in 0..n {
+            num += w[[i, j]] * (x[i] - mean) * (x[j] - mean);
+            s0 += w[[i, j]];
+        }
+    }
+    n as f64 / s0 * num / den
+}
+
+#[test]
+fn moran_pairs_keep_morans_i_on_mirrored_hemispheres() {
+    // Issue 9: an invented two-hemisphere sheet, 50 parcels per hemisphere on
+    // a Fibonacci lattice of a half-ellipsoid, the right hemisphere the exact
+    // mirror image of the left (x -> -x), 20 units between the medial walls;
+    // inverse-distance weights between all parcels. Mirroring makes the
+    // spectrum of near-degenerate bilateral pairs, and 100 regions leave 99
+    // eigenvectors: the case where pairing upwards from the smallest
+    // eigenvalue split the leading pairs.
+    let per = 50;
+    let golden = std::f64::consts::PI * (3.0 - 5f64.sqrt());
+    let mut pts = Vec::new();
+    for side in [-1.0, 1.0] {
+        for k in 0..per {
+            let uy = 1.0 - (2 * k + 1) as f64 / per as f64;
+            let r = (1.0 - uy * uy).sqrt();
+            let (ux, uz) = (r * (k as f64 * golden).cos(), r * (k as f64 * golden).sin());
+            pts.push([side * (38.0 + 28.0 * ux), 68.0 * uy, 10.0 + 45.0 * uz]);
+        }
+    }
+    let n = pts.len();
+    let w = Array2::from_shape_fn((n, n), |(i, j)| {
+        let d = (0..3).map(|c| (pts[i][c] - pts[j][c]).powi(2)).sum::<f64>().sqrt();
+        if i == j {
+            0.0
+        } else {
+            1.0 / d
+        }
+    });
+    let basis = MoranBasis::new(&w).unwrap();
+    assert_eq!(basis.eigenvalues.len(), 99);
+    let (pairs, alone) = hierax::hierarchy::moran_pairs(&basis.eigenvalues);
+    assert_eq!(pairs.len(), 49);
+    let mut mu = basis.eigenvalues.clone();
+    mu.sort_by(|a, b| b.total_cmp(a));
+    eprintln!("leading eigenvalues {:.4?}", &mu[..6]);
+    assert_eq!(
+        basis.eigenvalues[alone.unwrap()].abs(),
+        mu.iter().map(|m| m.abs()).fold(f64::INFINITY, f64::min)
+    );
+    let s0 = w.sum();
+    for seed in [1u64, 2, 3, 4, 5] {
+        // A smooth posterior-to-anterior map plus seeded parcel noise (10 % of its range).
+        let mut rng = <rand_chacha::ChaCha8Rng as rand::SeedableRng>::seed_from_u64(seed);
+        let map: Vec<f64> = pts
+            .iter()
+            .map(|p| {
+                let e: f64 = rand_distr::Distribution::sample(&rand_distr::StandardNormal, &mut rng);
+                p[1] / 68.0 + 0.3 * (p[2] / 30.0).sin() + 0.05 * e
+            })
+            .collect();
+        let i0 = morans_i_naive(&map, &w);
+        // Coefficients and the exact worst-case deviation of each pair:
+        // (n/S0) |mu_j - mu_k| (a_j^2 + a_k^2) / sum a^2 (module documentation).
+        let mean = map.iter().sum::<f64>() / n as f64;
+        let z = ndarray::Array1::from_iter(map.iter().map(|v| v - mean));
+        let a = basis.vectors.t().dot(&z);
+        let ss = a.dot(&a);
+        let bound: f64 = pairs
+            .iter()
+            .map(|&(j, k)| {
+                n as f64 / s0
+                    * (basis.eigenvalues[j] - basis.eigenvalues[k]).abs()
+                    * (a[j] * a[j] + a[k] * a[k])
+                    / ss
+            })
+            .sum();
+        // The old pairing, upwards from the smallest eigenvalue with the top
+        // one alone, could move I by far more: its worst case exceeds our
+        // 5 % tolerance, so this test tells the two apart.
+        let mut asc: Vec<usize> = (0..99).collect();
+        asc.sort_by(|&i, &j| basis.eigenvalues[i].total_cmp(&basis.eigenvalues[j]));
+        let old_bound: f64 = asc
+            .chunks_exact(2)
+            .map(|c| {
+                let (j, k) = (c[0], c[1]);
+                n as f64 / s0
+                    * (basis.eigenvalues[j] - basis.eigenvalues[k]).abs()
+                    * (a[j] * a[j] + a[k] * a[k])
+                    / ss
+            })
+            .sum();
+        assert!(old_bound > 0.05 * i0, "old pairing bound {old_bound} vs I {i0}");
+        let p = moran_surrogates(
+            &map,
+            &basis,
+            &MoranParams { method: MoranMethod::Pair, ..MoranParams::new(200, seed) },
+        )
+        .unwrap();
+        let single = moran_surrogates(&map, &basis, &MoranParams::new(50, seed)).unwrap();
+        let mut devs = Vec::new();
+        for r in 0..200 {
+            let col: Vec<f64> = p.surrogates.column(r).to_vec();
+            let i = morans_i_naive(&col, &w);
+            // The library's I of the surrogate agrees with the closed form.
+            assert!((p.surrogate_morans_i[r] - i).abs() < 1e-12, "{} vs {i}", p.surrogate_morans_i[r]);
+            // Never beyond the worst case of the pairing (1e-12 for rounding).
+            assert!((i - i0).abs() <= bound + 1e-12, "seed {seed} surrogate {r}: |{i} - {i0}| > {bound}");
+            devs.push((i - i0) / i0);
+        }
+        for r in 0..50 {
+            let col: Vec<f64> = single.surrogates.column(r).to_vec();
+            // Singleton: exact to rounding (1e-10 absolute, I is O(0.1)).
+            assert!((morans_i_naive(&col, &w) - i0).abs() < 1e-10);
+        }
+        let mean_dev = devs.iter().sum::<f64>() / devs.len() as f64;
+        let max_dev = devs.iter().map(|d| d.abs()).fold(0.0, f64::max);
+        eprintln!("seed {seed}: I = {i0:.4}, pair surrogates mean rel. change {mean_dev:+.4}, max {max_dev:.4}, bound {:.4} (old pairing {:.4})", bound / i0, old_bound / i0);
+        // Our tolerance: measured here, mean +0.7 to +0.9 % and max 1.9 %
+        // over the five seeds (the demo atlas: under 1 % and 1.8 %); the old
+        // pairing lost about 15 % on average. Every surrogate within 5 % of
+        // the map's I and no systematic change beyond 2 % separate the two
+        // with room for other seeds.
+        assert!(max_dev < 0.05 && mean_dev.abs() < 0.02, "seed {seed}: mean {mean_dev}, max {max_dev}");
+    }
+}
+
 // ---- the binary ----
+
+#[test]
+fn surrogates_help_states_the_known_limits() {
+    // Issue 9: the help says where the variogram fit error is measured and
+    // that spin p-values run slightly liberal at ~50 parcels per hemisphere.
+    let o = run(hierax().args(["surrogates", "--help"]));
+    assert!(o.status.success());
+    // Help text wraps at the terminal width: compare with whitespace collapsed.
+    let text = String::from_utf8_lossy(&o.stdout).split_whitespace().collect::<Vec<_>>().join(" ");
+    for needle in [
+        "is measured after rank-matching",
+        "Spin p-values run slightly liberal at about 50 parcels per hemisphere",
+        "about 6 % of p-values between independent smooth random fields fell below 0.05 at alpha = 0.05",
+        "paired from the largest down",
+    ] {
+        assert!(text.contains(needle), "help lacks {needle:?}");
+    }
+}
 
 fn assert_usage_error(args: &[&str], dir: &std::path::Path, needle: &str) {
     let out_dir = dir.join("out");

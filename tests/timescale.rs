@@ -461,3 +461,236 @@ fn min_frames_rule_marks_regions_and_cli_refuses_when_none_remain() {
     let res = estimate_timescales(data.view(), &names, Some(&valid), &[], &p.check(n).unwrap()).unwrap();
     assert!(res.regions.iter().all(|r| r.status == RegionStatus::Ok));
 }
+
+#[test]
+fn implausible_fits_are_flagged_and_never_reported() {
+    // Planted absurd fits (issue 9): white noise (no decay to fit) and
+    // anti-correlated AR(1) (phi = -0.6: an alternating ACF that a decaying
+    // exponential can only match with a <= 0 or a tiny tau), against clean
+    // AR(1) (phi = 0.8, whose ACF phi^k is the exponential model itself).
+    // 240 frames at TR 2 s (the demo's protocol); five seeds, 40 regions each.
+    let (n, tr, per) = (240usize, 2.0, 40usize);
+    let bounds = hierax::timescale::TauBounds::new(tr, n);
+    // Per group (white, anti-correlated, clean): exp fits ok, exp fits implausible.
+    let mut exp_ok_n = [0usize; 3];
+    let mut exp_implausible = [0usize; 3];
+    for seed in [1u64, 2, 3, 4, 5] {
+        let mut rng = ChaCha8Rng::seed_from_u64(seed);
+        let mut data = Array2::<f64>::zeros((n, 3 * per));
+        for j in 0..3 * per {
+            let phi = [0.0, -0.6, 0.8][j / per];
+            data.column_mut(j).assign(&ndarray::Array1::from(ar1(n, phi, &mut rng)));
+        }
+        let names: Vec<String> = (0..3 * per).map(|j| format!("r{j}")).collect();
+        let mut p = TimescaleParams::new(tr);
+        p.bias_correction = BiasCorrection::Ar1;
+        let res = estimate_timescales(data.view(), &names, None, &[], &p.check(n).unwrap()).unwrap();
+        let exp_tau = res.column_values("exp_tau_s").unwrap();
+        let knee_tau = res.column_values("knee_tau_s").unwrap();
+        let ar1_tau = res.column_values("ar1_tau_s").unwrap();
+        for (j, r) in res.regions.iter().enumerate() {
+            let e = &r.estimates;
+            // The invariant: status ok <=> a reported, plausible value.
+            let exp_ok = e.status_of(Estimator::ExpFit) == hierax::timescale::EstimateStatus::Ok;
+            if let Some(f) = e.exp {
+                assert_eq!(exp_ok, f.amplitude > 0.0 && bounds.contains(f.tau_s), "region {j}: {f:?}");
+            }
+            assert_eq!(exp_ok, exp_tau[j].is_finite(), "region {j}");
+            if exp_ok {
+                assert!(exp_tau[j] >= tr / 10.0 && exp_tau[j] <= n as f64 * tr);
+            }
+            let knee_ok = e.status_of(Estimator::SpectralKnee) == hierax::timescale::EstimateStatus::Ok;
+            if let Some(k) = e.knee {
+                let inside = k.knee_hz >= k.band_fitted_hz.0 && k.knee_hz <= k.band_fitted_hz.1;
+                assert_eq!(knee_ok, inside && bounds.contains(k.tau_s), "region {j}: {k:?}");
+            }
+            assert_eq!(knee_ok, knee_tau[j].is_finite());
+            assert_eq!(e.ar1_status == hierax::timescale::EstimateStatus::Ok, ar1_tau[j].is_finite());
+            exp_ok_n[j / per] += exp_ok as usize;
+            exp_implausible[j / per] += (e.status_of(Estimator::ExpFit)
+                == hierax::timescale::EstimateStatus::ImplausibleFit)
+                as usize;
+        }
+    }
+    eprintln!("exp fits ok per group (white, anti, AR(1)) {exp_ok_n:?}, implausible {exp_implausible:?}");
+    // Measured (seeds 1-5): ok [29, 0, 200], implausible [83, 42, 0]. The
+    // planted absurd fits are caught: an anti-correlated series never yields
+    // an ok exponential timescale, and both planted kinds produce flagged
+    // (converged but implausible) fits.
+    assert_eq!(exp_ok_n[1], 0, "an anti-correlated series gave an ok exponential timescale");
+    assert!(exp_implausible[0] > 0 && exp_implausible[1] > 0, "{exp_implausible:?}");
+    // A clean AR(1) fit stays ok (every seed, every region).
+    assert_eq!((exp_ok_n[2], exp_implausible[2]), (5 * per, 0));
+}
+
+#[test]
+fn flags_count_only_the_estimators_in_use() {
+    // Issue 9: a region whose initial positive sum is fine but whose knee fit
+    // fails must not be flagged for a consumer of `ips_tau_s`.
+    use hierax::timescale::{column_source, ColumnSource, EstimateStatus, TimescaleError};
+    for (col, src) in [
+        ("ips_tau_s", ColumnSource::Estimator(Estimator::InitialPositiveSum)),
+        ("acw50_interp_s", ColumnSource::Estimator(Estimator::Acw50)),
+        ("acw0_s", ColumnSource::Estimator(Estimator::Acw0)),
+        ("exp_tau_s", ColumnSource::Estimator(Estimator::ExpFit)),
+        ("knee_tau_s", ColumnSource::Estimator(Estimator::SpectralKnee)),
+        ("ar1_tau_corrected_s", ColumnSource::Ar1),
+    ] {
+        assert_eq!(column_source(col), Some(src), "{col}");
+    }
+    assert_eq!(column_source("exp_amplitude"), None);
+    // The columns the per-subject job can link, and their estimators.
+    use hierax::timescale::column_estimator;
+    for (col, e) in [
+        ("ips_tau_s", Estimator::InitialPositiveSum),
+        ("acw50_s", Estimator::Acw50),
+        ("acw50_interp_s", Estimator::Acw50),
+        ("acw0_s", Estimator::Acw0),
+        ("acw0_interp_s", Estimator::Acw0),
+        ("exp_tau_s", Estimator::ExpFit),
+        ("knee_tau_s", Estimator::SpectralKnee),
+    ] {
+        assert_eq!(column_estimator(col), Some(e), "{col}");
+    }
+    for col in ["ar1_tau_s", "ar1_tau_corrected_s", "knee_hz", "tau"] {
+        assert_eq!(column_estimator(col), None, "{col}");
+    }
+
+    // White noise and AR(1) at 240 frames (seed 11): the initial positive
+    // sum almost never fails on them, the fits often do on white noise.
+    let (n, tr) = (240usize, 2.0);
+    let mut rng = ChaCha8Rng::seed_from_u64(11);
+    let mut data = Array2::<f64>::zeros((n, 60));
+    for j in 0..60 {
+        let phi = if j < 30 { 0.0 } else { 0.7 };
+        data.column_mut(j).assign(&ndarray::Array1::from(ar1(n, phi, &mut rng)));
+    }
+    data.column_mut(59).fill(1.0); // one constant region: flagged for every consumer
+    let names: Vec<String> = (0..60).map(|j| format!("r{j}")).collect();
+    let p = TimescaleParams::new(tr);
+    let res = estimate_timescales(data.view(), &names, None, &[], &p.check(n).unwrap()).unwrap();
+    let ips = ColumnSource::Estimator(Estimator::InitialPositiveSum);
+    let knee = ColumnSource::Estimator(Estimator::SpectralKnee);
+    // Naive count, straight from the per-region statuses.
+    let naive = |srcs: &[ColumnSource]| {
+        res.regions
+            .iter()
+            .filter(|r| {
+                r.status != RegionStatus::Ok
+                    || srcs.iter().any(|&s| r.estimates.status_of_source(s) != EstimateStatus::Ok)
+            })
+            .count()
+    };
+    let (n_ips, n_knee, n_all) = (res.n_flagged_for(&[ips]), res.n_flagged_for(&[knee]), res.n_flagged());
+    eprintln!("flagged: ips {n_ips}, knee {n_knee}, any estimator {n_all}");
+    assert_eq!(n_ips, naive(&[ips]));
+    assert_eq!(n_knee, naive(&[knee]));
+    assert_eq!(n_all, naive(&res.selected_sources()));
+    assert!(n_ips < n_all, "knee and fit failures still flag ips consumers");
+    // At least the constant region.
+    assert!(n_ips >= 1);
+    // The overall status of a table made for ips consumers names only ips.
+    let t = res.to_table_for(&[ips]);
+    let status = match t.column("status").unwrap() {
+        hierax::io::table::Column::Str(s) => s.clone(),
+        _ => unreachable!(),
+    };
+    assert_eq!(status.iter().filter(|s| *s != "ok").count(), n_ips);
+    assert!(
+        status.iter().all(|s| s == "ok" || s.starts_with("ips:") || s == "constant_signal"),
+        "{status:?}"
+    );
+    // Values: NaN exactly where the column's status (or the region's) is not ok.
+    let v = res.column_values("ips_tau_s").unwrap();
+    let st = res.column_statuses("ips_tau_s").unwrap();
+    for (x, s) in v.iter().zip(&st) {
+        assert_eq!(x.is_finite(), *s == "ok");
+    }
+    assert_eq!(st[59], "constant_signal");
+    // A column that is not there is a typed error naming the choices.
+    match res.column_values("ar1_tau_s") {
+        Err(TimescaleError::UnknownColumn { column, expected }) => {
+            assert_eq!(column, "ar1_tau_s");
+            assert!(expected.contains("ips_tau_s") && expected.contains("knee_tau_s"), "{expected}");
+        }
+        other => panic!("expected UnknownColumn, got {other:?}"),
+    }
+}
+
+/// Read one column of a CSV written by hierax (`NaN`/empty cells as NaN).
+fn csv_column(path: &std::path::Path, name: &str) -> Vec<f64> {
+    let text = std::fs::read_to_string(path).unwrap();
+    let mut lines = text.lines();
+    let header: Vec<&str> = lines.next().unwrap().split(',').collect();
+    let i = header.iter().position(|h| *h == name).unwrap_or_else(|| panic!("no {name} in {header:?}"));
+    lines.map(|l| l.split(',').nth(i).unwrap().parse::<f64>().unwrap_or(f64::NAN)).collect()
+}
+
+#[test]
+fn demo_knee_is_the_same_from_the_command_and_the_subject_job() {
+    // Issue 9: one Welch segment rule for every path. Invented demo subject
+    // sub-01 (240 frames, TR 2 s), censoring FD > 0.5 mm with no extra
+    // frames in both paths (the job's defaults). The per-subject job's
+    // timescale stage is run through the library with its defaults
+    // (`welch_segment: None`, the shared rule).
+    use hierax::io::InputSpec;
+    use hierax::subject::{stages, LoadedSubject, SubjectConfig, SubjectInputs};
+    let root = crate::util::repo_root().join("demo-data");
+    let sub = root.join("sub-01");
+    let dir = tempfile::tempdir().unwrap();
+    let cli_out = dir.path().join("cli");
+    let o = run(hierax()
+        .arg("timescales")
+        .arg(sub.join("sub-01_bold.npy"))
+        .args(["--tr", "2", "--orientation", "time-by-region", "--fd-threshold", "0.5"])
+        .arg("--confounds")
+        .arg(sub.join("sub-01_confounds.tsv"))
+        .arg("--out")
+        .arg(&cli_out));
+    assert!(o.status.success(), "{}", String::from_utf8_lossy(&o.stderr));
+    let spec = |p: std::path::PathBuf| InputSpec::parse(p.to_str().unwrap()).unwrap();
+    let inputs = SubjectInputs {
+        subject: "sub-01".into(),
+        connectome: spec(sub.join("sub-01_connectome.csv")),
+        series: spec(sub.join("sub-01_bold.npy")),
+        map: spec(root.join("atlas/hierarchy.csv")),
+        confounds: Some(spec(sub.join("sub-01_confounds.tsv"))),
+        distances: None,
+        sphere: None,
+        hemisphere: None,
+        covariates: Default::default(),
+    };
+    let cfg = SubjectConfig::new(2.0);
+    assert_eq!((cfg.welch_segment, cfg.fd_threshold_mm, cfg.censor_after), (None, Some(0.5), 0));
+    let cfg = cfg.check().unwrap();
+    let loaded = LoadedSubject::load(&inputs, &cfg).unwrap();
+    let stage = stages::timescales(&loaded, &cfg).unwrap();
+    let job = stage.result.to_table();
+    let json: Value =
+        serde_json::from_str(&std::fs::read_to_string(cli_out.join("timescales.json")).unwrap()).unwrap();
+    let seg = json["summary"]["welch_segment_frames"].as_u64().unwrap() as usize;
+    assert_eq!(Some(seg), stage.result.welch_segment_frames);
+    assert_eq!(json["summary"]["n_valid_frames"].as_u64().unwrap() as usize, stage.result.n_valid_frames);
+    let cli_csv = cli_out.join("timescales.csv");
+    for col in ["knee_tau_s", "knee_hz", "knee_exponent", "ips_tau_s", "exp_tau_s"] {
+        let a = csv_column(&cli_csv, col);
+        let Some(hierax::io::table::Column::F64(b)) = job.column(col) else {
+            panic!("job table lacks {col}")
+        };
+        assert_eq!((a.len(), b.len()), (100, 100));
+        for (i, (x, y)) in a.iter().zip(b).enumerate() {
+            // Same arithmetic on the same data: identical to the last bit
+            // (the CSV prints shortest round-trip decimals).
+            assert!(x.to_bits() == y.to_bits() || (x.is_nan() && y.is_nan()), "{col} region {i}: {x} vs {y}");
+        }
+    }
+    // The job's linked column is the table's, NaN exactly where not ok.
+    assert_eq!(stage.column, "ips_tau_s");
+    let ips = stage.result.column_values("ips_tau_s").unwrap();
+    assert!(ips.iter().zip(&stage.tau).all(|(x, y)| x.to_bits() == y.to_bits()));
+    let finite = csv_column(&cli_csv, "knee_tau_s").iter().filter(|v| v.is_finite()).count();
+    eprintln!(
+        "sub-01: {} valid frames, Welch segment {seg} frames, {finite} of 100 knees ok",
+        stage.result.n_valid_frames
+    );
+}

@@ -17,7 +17,7 @@ use std::process::ExitCode;
 enum EstimatorArg {
     /// Every estimator below.
     All,
-    /// Sum of the initial positive ACF x TR (Watanabe et al. 2019).
+    /// Sum of the initial positive ACF x TR (Watanabe, Rees & Masuda 2019, eLife).
     InitialPositiveSum,
     /// First lag where the ACF drops to 0.5 (Honey et al. 2012).
     Acw50,
@@ -51,7 +51,11 @@ enum BiasArg {
 /// Writes OUT/timescales.csv (one row per region: each estimate in seconds,
 /// its bootstrap standard error, and a QC status) and OUT/timescales.json
 /// (every parameter, the inputs with their SHA-256 digests, and a summary).
-/// A region that cannot be estimated keeps its row with a non-ok status.
+/// A region that cannot be estimated keeps its row with a non-ok status. A
+/// fitted timescale (exponential, spectral knee, AR(1)) that converged but
+/// lies outside [TR/10, valid frames x TR], has a non-positive amplitude, or
+/// puts the knee outside the fitted band is marked implausible_fit and its
+/// cell left empty (the bounds are our choice).
 ///
 /// Research software: results are not for clinical decisions.
 #[derive(Debug, Args)]
@@ -127,7 +131,8 @@ pub struct TimescalesArgs {
     #[arg(long, value_name = "FIRST:LAST")]
     fit_lags: Option<String>,
 
-    /// Welch segment length in frames [default: min(256, frames)].
+    /// Welch segment length in frames [default: min(256, frames), shortened under censoring until
+    /// fully valid segments cover half the valid frames; the length used is in timescales.json].
     #[arg(long, value_name = "N")]
     welch_segment: Option<usize>,
 
@@ -291,6 +296,10 @@ pub fn run(args: TimescalesArgs) -> anyhow::Result<ExitCode> {
         "n_frames": n_frames,
         "n_valid_frames": result.n_valid_frames,
         "n_regions_flagged": result.n_flagged(),
+        "welch_segment_frames": result.welch_segment_frames,
+        "tau_bounds_s": {"min": valid_params.tr_s / 10.0,
+                         "max": result.n_valid_frames as f64 * valid_params.tr_s,
+                         "rule": "a fitted timescale outside [TR/10, valid frames x TR] is implausible_fit"},
         "status_counts": status_counts,
         "notes": series.notes,
         "columns": table.names(),

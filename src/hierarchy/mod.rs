@@ -49,7 +49,9 @@ pub mod variogram;
 pub use error::HierarchyError;
 pub use gradient::{diffusion_embedding, GradientParams, Gradients};
 pub use linalg::pearson;
-pub use moran::{moran_surrogates, morans_i, MoranBasis, MoranMethod, MoranParams, MoranSurrogates};
+pub use moran::{
+    moran_pairs, moran_surrogates, morans_i, MoranBasis, MoranMethod, MoranParams, MoranSurrogates,
+};
 pub use spin::{spin_surrogates, SphereLayout, SpinParams, SpinSurrogates};
 pub use states::{build_states, Order, States, StatesParams};
 pub use surrogates::{surrogate_maps, SpatialInputs, SurrogateMethod};

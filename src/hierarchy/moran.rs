@@ -12,11 +12,24 @@
 //! `S₀ = Σ_ij w_ij`. A surrogate is `x̄ + V a′` where
 //! * `singleton` (default): `a′_k = ±a_k` with independent fair signs, so the
 //!   mean, the variance and Moran's I are preserved exactly;
-//! * `pair`: consecutive eigenvectors (in eigenvalue order) are paired and
-//!   each pair of coefficients is rotated by a uniform random angle (a last
-//!   unpaired one gets a random sign); mean and variance are exact and I is
-//!   preserved approximately, the more closely the nearer paired eigenvalues
-//!   are.
+//! * `pair`: eigenvectors are paired with their neighbours in eigenvalue
+//!   order from the largest eigenvalue down ([`moran_pairs`]); with an odd
+//!   count the one with the smallest |μ| stays alone and gets a random sign.
+//!   Each pair of coefficients is rotated by a uniform random angle. Mean and
+//!   variance are exact; rotating pair (j, k) changes I by
+//!   `(n/S₀)(μ_j − μ_k)(a′_j² − a_j²)/Σa²`, at most
+//!   `(n/S₀)|μ_j − μ_k|(a_j² + a_k²)/Σa²`, so I is preserved the more
+//!   closely the nearer the paired eigenvalues are where the map's
+//!   coefficients are large. Pairing from the top keeps the near-degenerate
+//!   leading pairs together (e.g. the mirrored patterns of two hemispheres),
+//!   where a smooth map puts most of its variance; the lone vector at the
+//!   smallest |μ| contributes nothing to I. (Pairing upwards from the
+//!   smallest eigenvalue instead left the top eigenvector alone with an odd
+//!   count and split every leading pair: on the invented demo atlas with
+//!   inverse-distance weights and its hierarchy map it lost about 15 % of I
+//!   on average, up to 35 %; pairing from the top moves it by under 1 % on
+//!   average, at most 1.8 %; measured with an independent numpy 2.1.3
+//!   re-implementation over 200 surrogates, one seed.)
 //!
 //! Values are not permuted: surrogates keep mean, variance and spatial
 //! autocorrelation, not the exact distribution.
@@ -36,7 +49,8 @@ pub enum MoranMethod {
     /// Random signs; Moran's I exact.
     #[default]
     Singleton,
-    /// Random rotations of consecutive pairs; Moran's I approximate.
+    /// Random rotations of pairs of eigenvectors with neighbouring
+    /// eigenvalues, from the largest down ([`moran_pairs`]); Moran's I approximate.
     Pair,
 }
 
@@ -68,6 +82,35 @@ pub struct MoranBasis {
     /// `S₀ = Σ w_ij`.
     pub s0: f64,
     weights: Array2<f64>,
+}
+
+/// The pairs of the `pair` method: indices into `eigenvalues` (any order),
+/// paired as neighbours in descending eigenvalue order, and the index left
+/// alone when the count is odd (the smallest |μ|, first such index on ties).
+/// Pairs are listed from the largest eigenvalue down.
+///
+/// With $\mu_{(1)}\ge\mu_{(2)}\ge\dots$ the eigenvalues sorted downwards
+/// after removing the one of smallest $|\mu|$ when their count is odd, the
+/// pairs are $(\mu_{(1)},\mu_{(2)}),(\mu_{(3)},\mu_{(4)}),\dots$. A random
+/// rotation of pair $(j,k)$ moves Moran's I by at most
+/// $$\frac{n}{S_0}\,|\mu_j-\mu_k|\,\frac{a_j^2+a_k^2}{\sum_i a_i^2},$$
+/// so neighbours in eigenvalue order keep I best. The pair variant is that
+/// of Wagner & Dray 2015 (Methods Ecol Evol 6:1169); pairing from the top
+/// is our choice (see the module documentation).
+pub fn moran_pairs(eigenvalues: &[f64]) -> (Vec<(usize, usize)>, Option<usize>) {
+    let mut order: Vec<usize> = (0..eigenvalues.len()).collect();
+    order.sort_by(|&i, &j| eigenvalues[j].total_cmp(&eigenvalues[i]).then(i.cmp(&j)));
+    let alone = if order.len() % 2 == 1 {
+        let k = (0..order.len())
+            .min_by(|&a, &b| {
+                eigenvalues[order[a]].abs().total_cmp(&eigenvalues[order[b]].abs()).then(a.cmp(&b))
+            })
+            .unwrap_or(0);
+        Some(order.remove(k))
+    } else {
+        None
+    };
+    (order.chunks_exact(2).map(|c| (c[0], c[1])).collect(), alone)
 }
 
 /// Moran's I of `x` under weights `w` (Moran 1950), computed directly:
@@ -185,7 +228,7 @@ pub fn moran_surrogates(
     let mean = map.iter().sum::<f64>() / n as f64;
     let z = Array1::from_iter(map.iter().map(|v| v - mean));
     let a = basis.vectors.t().dot(&z);
-    let p = a.len();
+    let (pairs, alone) = moran_pairs(&basis.eigenvalues);
     let cols: Vec<Vec<f64>> = (0..params.count)
         .into_par_iter()
         .map(|r| {
@@ -200,17 +243,17 @@ pub fn moran_surrogates(
                     }
                 }
                 MoranMethod::Pair => {
-                    let mut k = 0;
-                    while k + 1 < p {
+                    for &(j, k) in &pairs {
                         let t = rng.random::<f64>() * std::f64::consts::TAU;
                         let (c, s) = (t.cos(), t.sin());
-                        let (x, y) = (a[k], a[k + 1]);
-                        b[k] = c * x - s * y;
-                        b[k + 1] = s * x + c * y;
-                        k += 2;
+                        let (x, y) = (a[j], a[k]);
+                        b[j] = c * x - s * y;
+                        b[k] = s * x + c * y;
                     }
-                    if k < p && rng.random::<bool>() {
-                        b[k] = -b[k];
+                    if let Some(k) = alone {
+                        if rng.random::<bool>() {
+                            b[k] = -b[k];
+                        }
                     }
                 }
             }
@@ -230,6 +273,17 @@ pub fn moran_surrogates(
 #[cfg(test)]
 mod tests {
     use super::*;
+
+    #[test]
+    fn pairs_run_from_the_top_and_leave_the_smallest_magnitude_alone() {
+        // Unsorted input: indices refer to it. Descending: 0.9(2) 0.8(0) 0.3(4) 0.01(1) -0.2(5) -0.25(3) -0.5(6).
+        let mu = [0.8, 0.01, 0.9, -0.25, 0.3, -0.2, -0.5];
+        let (pairs, alone) = moran_pairs(&mu);
+        assert_eq!(alone, Some(1));
+        assert_eq!(pairs, vec![(2, 0), (4, 5), (3, 6)]);
+        let (pairs, alone) = moran_pairs(&[0.1, 0.5, 0.4, 0.2]);
+        assert_eq!((pairs, alone), (vec![(1, 2), (3, 0)], None));
+    }
 
     #[test]
     fn basis_is_orthonormal_and_orthogonal_to_constant() {

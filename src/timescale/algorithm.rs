@@ -3,12 +3,12 @@
 
 use super::acf::AcfPlan;
 use super::estimators::{
-    ar1_timescale, autocorrelation_window, fit_exp_decay, fit_spectral_knee, initial_positive_sum,
-    marriott_pope_lag1, EstimateStatus, ExpFit, KneeFit,
+    ar1_timescale, autocorrelation_window, check_exp_fit, check_knee_fit, fit_exp_decay, fit_spectral_knee,
+    initial_positive_sum, marriott_pope_lag1, EstimateStatus, ExpFit, KneeFit, TauBounds,
 };
 use super::params::{BiasCorrection, Estimator, ValidTimescaleParams};
 use super::preprocess::{Confound, NuisanceModel};
-use super::welch::WelchPlan;
+use super::welch::{welch_segment_default, WelchPlan};
 use super::TimescaleError;
 use crate::io::table::{Column, Table};
 use ndarray::ArrayView2;
@@ -46,8 +46,78 @@ impl RegionStatus {
     }
 }
 
+/// What computes a timescale column, and so whose status governs it: one
+/// of the [`Estimator`]s, or the AR(1) columns of
+/// [`BiasCorrection::Ar1`].
+#[derive(Clone, Copy, Debug, PartialEq, Eq, Hash, PartialOrd, Ord, Serialize)]
+#[serde(rename_all = "kebab-case")]
+#[non_exhaustive]
+pub enum ColumnSource {
+    /// A timescale estimator.
+    Estimator(Estimator),
+    /// The AR(1) timescale and its Marriott–Pope corrected form.
+    Ar1,
+}
+
+impl ColumnSource {
+    /// The timescale columns (seconds) this source fills, in table order.
+    pub fn columns(self) -> &'static [&'static str] {
+        match self {
+            ColumnSource::Estimator(Estimator::InitialPositiveSum) => &["ips_tau_s"],
+            ColumnSource::Estimator(Estimator::Acw50) => &["acw50_s", "acw50_interp_s"],
+            ColumnSource::Estimator(Estimator::Acw0) => &["acw0_s", "acw0_interp_s"],
+            ColumnSource::Estimator(Estimator::ExpFit) => &["exp_tau_s"],
+            ColumnSource::Estimator(Estimator::SpectralKnee) => &["knee_tau_s"],
+            ColumnSource::Ar1 => &["ar1_tau_s", "ar1_tau_corrected_s"],
+        }
+    }
+
+    /// The prefix of its `_status` column (`ips`, `acw50`, ..., `ar1`).
+    pub fn prefix(self) -> &'static str {
+        match self {
+            ColumnSource::Estimator(e) => e.prefix(),
+            ColumnSource::Ar1 => "ar1",
+        }
+    }
+
+    /// Every source, in table order.
+    pub const ALL: [ColumnSource; 6] = [
+        ColumnSource::Estimator(Estimator::InitialPositiveSum),
+        ColumnSource::Estimator(Estimator::Acw50),
+        ColumnSource::Estimator(Estimator::Acw0),
+        ColumnSource::Estimator(Estimator::ExpFit),
+        ColumnSource::Estimator(Estimator::SpectralKnee),
+        ColumnSource::Ar1,
+    ];
+}
+
+/// The source of timescale column `column` (`ips_tau_s`, `acw50_interp_s`,
+/// `exp_tau_s`, `knee_tau_s`, `ar1_tau_corrected_s`, ...), or `None` when it
+/// is not a timescale column. Its status is the `_status` column with the
+/// source's [`prefix`](ColumnSource::prefix).
+pub fn column_source(column: &str) -> Option<ColumnSource> {
+    ColumnSource::ALL.into_iter().find(|s| s.columns().contains(&column))
+}
+
+/// The [`Estimator`] behind timescale column `column`: `ips_tau_s` →
+/// initial positive sum; `acw50_s`, `acw50_interp_s` → ACW-50; `acw0_s`,
+/// `acw0_interp_s` → ACW-0; `exp_tau_s` → exponential fit; `knee_tau_s` →
+/// spectral knee. `None` for any other name, including the AR(1) columns
+/// (their source is [`ColumnSource::Ar1`], see [`column_source`]). A
+/// consumer reads the column with [`TimescaleResult::column_values`] (NaN
+/// unless the region and this estimator are ok) and counts its flags with
+/// [`TimescaleResult::n_flagged_for`]`(&[ColumnSource::Estimator(e)])`.
+pub fn column_estimator(column: &str) -> Option<Estimator> {
+    match column_source(column)? {
+        ColumnSource::Estimator(e) => Some(e),
+        ColumnSource::Ar1 => None,
+    }
+}
+
 /// Every estimate for one region (NaN where not selected or failed; the
-/// matching status says which).
+/// matching status says which). The fits are kept even when their status is
+/// [`EstimateStatus::ImplausibleFit`], for inspection; [`RegionEstimates::value`]
+/// and every table report a timescale only when its status is ok.
 #[derive(Clone, Debug, PartialEq, Serialize)]
 pub struct RegionEstimates {
     /// Lag-1 autocorrelation.
@@ -62,9 +132,9 @@ pub struct RegionEstimates {
     pub acw0_s: f64,
     /// ACW-0 interpolated, s.
     pub acw0_interp_s: f64,
-    /// Exponential fit, when it succeeded.
+    /// Exponential fit, when it converged (check its status before use).
     pub exp: Option<ExpFit>,
-    /// Spectral knee fit, when it succeeded.
+    /// Spectral knee fit, when it converged (check its status before use).
     pub knee: Option<KneeFit>,
     /// AR(1) timescale from the lag-1 ACF, s (with `--bias-correction ar1`).
     pub ar1_tau_s: f64,
@@ -99,31 +169,55 @@ impl RegionEstimates {
         self.status[Estimator::ALL.iter().position(|x| *x == e).unwrap_or(0)]
     }
 
-    /// The timescale-valued quantities of the selected estimators, in table
-    /// order, as `(column, value)`. These are the quantities bootstrapped.
-    pub fn primary(&self, p: &ValidTimescaleParams) -> Vec<(&'static str, f64)> {
-        let mut out = Vec::new();
-        for &e in &p.estimators {
-            match e {
-                Estimator::InitialPositiveSum => out.push(("ips_tau_s", self.ips_s)),
-                Estimator::Acw50 => {
-                    out.push(("acw50_s", self.acw50_s));
-                    out.push(("acw50_interp_s", self.acw50_interp_s));
-                }
-                Estimator::Acw0 => {
-                    out.push(("acw0_s", self.acw0_s));
-                    out.push(("acw0_interp_s", self.acw0_interp_s));
-                }
-                Estimator::ExpFit => out.push(("exp_tau_s", self.exp.map_or(f64::NAN, |f| f.tau_s))),
-                Estimator::SpectralKnee => out.push(("knee_tau_s", self.knee.map_or(f64::NAN, |f| f.tau_s))),
-            }
+    /// Status of a column source.
+    pub fn status_of_source(&self, s: ColumnSource) -> EstimateStatus {
+        match s {
+            ColumnSource::Estimator(e) => self.status_of(e),
+            ColumnSource::Ar1 => self.ar1_status,
         }
-        if p.bias_correction == BiasCorrection::Ar1 {
-            out.push(("ar1_tau_s", self.ar1_tau_s));
-            out.push(("ar1_tau_corrected_s", self.ar1_tau_corrected_s));
-        }
-        out
     }
+
+    /// The computed value of timescale column `column`, whatever its status
+    /// (NaN for an unknown column or a fit that did not converge).
+    pub fn raw_value(&self, column: &str) -> f64 {
+        match column {
+            "ips_tau_s" => self.ips_s,
+            "acw50_s" => self.acw50_s,
+            "acw50_interp_s" => self.acw50_interp_s,
+            "acw0_s" => self.acw0_s,
+            "acw0_interp_s" => self.acw0_interp_s,
+            "exp_tau_s" => self.exp.map_or(f64::NAN, |f| f.tau_s),
+            "knee_tau_s" => self.knee.map_or(f64::NAN, |f| f.tau_s),
+            "ar1_tau_s" => self.ar1_tau_s,
+            "ar1_tau_corrected_s" => self.ar1_tau_corrected_s,
+            _ => f64::NAN,
+        }
+    }
+
+    /// The value of timescale column `column` when its source's status is
+    /// ok, NaN otherwise (so an implausible fit never enters a mean).
+    pub fn value(&self, column: &str) -> f64 {
+        match column_source(column) {
+            Some(s) if self.status_of_source(s) == EstimateStatus::Ok => self.raw_value(column),
+            _ => f64::NAN,
+        }
+    }
+
+    /// The timescale-valued quantities of the selected estimators, in table
+    /// order, as `(column, value)`, each NaN unless its status is ok. These
+    /// are the quantities bootstrapped.
+    pub fn primary(&self, p: &ValidTimescaleParams) -> Vec<(&'static str, f64)> {
+        selected_sources(p).into_iter().flat_map(|s| s.columns()).map(|&c| (c, self.value(c))).collect()
+    }
+}
+
+/// The column sources selected by `p`, in table order.
+fn selected_sources(p: &ValidTimescaleParams) -> Vec<ColumnSource> {
+    let mut out: Vec<ColumnSource> = p.estimators.iter().map(|&e| ColumnSource::Estimator(e)).collect();
+    if p.bias_correction == BiasCorrection::Ar1 {
+        out.push(ColumnSource::Ar1);
+    }
+    out
 }
 
 /// One region's result.
@@ -155,31 +249,108 @@ pub struct TimescaleResult {
     pub n_valid_frames: usize,
     /// One entry per region, in input order.
     pub regions: Vec<RegionResult>,
+    /// Welch segment length used by the spectral knee, frames (`None` when
+    /// the knee was not selected): the given one, or the shared rule
+    /// [`welch_segment_default`] applied
+    /// to this series' censoring mask.
+    pub welch_segment_frames: Option<usize>,
 }
 
 impl TimescaleResult {
+    /// The column sources selected by the parameters, in table order.
+    pub fn selected_sources(&self) -> Vec<ColumnSource> {
+        selected_sources(&self.params)
+    }
+
+    /// The timescale columns (seconds) of this result, in table order.
+    pub fn timescale_columns(&self) -> Vec<&'static str> {
+        self.selected_sources().into_iter().flat_map(|s| s.columns().iter().copied()).collect()
+    }
+
+    fn source_of(&self, column: &str) -> Result<ColumnSource, TimescaleError> {
+        match column_source(column) {
+            Some(s) if self.selected_sources().contains(&s) => Ok(s),
+            _ => Err(TimescaleError::UnknownColumn {
+                column: column.to_string(),
+                expected: self.timescale_columns().join(", "),
+            }),
+        }
+    }
+
+    /// Per region, the value of timescale column `column` when the region
+    /// and the column's estimator are both ok, NaN otherwise. This is the
+    /// vector to average or correlate: a flagged estimate never enters it.
+    ///
+    /// # Errors
+    /// [`TimescaleError::UnknownColumn`] when `column` is not one of
+    /// [`timescale_columns`](Self::timescale_columns).
+    pub fn column_values(&self, column: &str) -> Result<Vec<f64>, TimescaleError> {
+        self.source_of(column)?;
+        Ok(self
+            .regions
+            .iter()
+            .map(|r| if r.status == RegionStatus::Ok { r.estimates.value(column) } else { f64::NAN })
+            .collect())
+    }
+
+    /// Per region, the status governing timescale column `column`: the
+    /// region status when it is not ok, else the estimator's status
+    /// (`ok`, `implausible_fit`, ...).
+    ///
+    /// # Errors
+    /// As [`column_values`](Self::column_values).
+    pub fn column_statuses(&self, column: &str) -> Result<Vec<&'static str>, TimescaleError> {
+        let s = self.source_of(column)?;
+        Ok(self
+            .regions
+            .iter()
+            .map(|r| {
+                if r.status != RegionStatus::Ok {
+                    r.status.as_str()
+                } else {
+                    r.estimates.status_of_source(s).as_str()
+                }
+            })
+            .collect())
+    }
+
     /// Number of regions whose region status or any selected estimator is not ok.
     pub fn n_flagged(&self) -> usize {
-        self.regions.iter().filter(|r| self.qc_string(r) != "ok").count()
+        self.n_flagged_for(&self.selected_sources())
+    }
+
+    /// Number of regions whose region status, or the status of one of
+    /// `in_use`, is not ok (statuses of other estimators are ignored: a
+    /// failed knee fit does not flag a region whose initial positive sum is
+    /// used). Sources not selected are ignored.
+    pub fn n_flagged_for(&self, in_use: &[ColumnSource]) -> usize {
+        self.regions.iter().filter(|r| self.qc_string_for(r, in_use) != "ok").count()
     }
 
     /// `ok`, or the region status, or `;`-joined `estimator:status` items.
     pub fn qc_string(&self, r: &RegionResult) -> String {
+        self.qc_string_for(r, &self.selected_sources())
+    }
+
+    /// As [`qc_string`](Self::qc_string), over the sources `in_use` only
+    /// (and the bootstrap SEs of their columns).
+    pub fn qc_string_for(&self, r: &RegionResult, in_use: &[ColumnSource]) -> String {
         if r.status != RegionStatus::Ok {
             return r.status.as_str().to_string();
         }
-        let mut items: Vec<String> = self
-            .params
-            .estimators
+        let selected = self.selected_sources();
+        let mut items: Vec<String> = selected
             .iter()
-            .filter(|&&e| r.estimates.status_of(e) != EstimateStatus::Ok)
-            .map(|&e| format!("{}:{}", e.prefix(), r.estimates.status_of(e).as_str()))
+            .filter(|s| in_use.contains(s))
+            .filter(|&&s| r.estimates.status_of_source(s) != EstimateStatus::Ok)
+            .map(|&s| format!("{}:{}", s.prefix(), r.estimates.status_of_source(s).as_str()))
             .collect();
-        if self.params.bias_correction == BiasCorrection::Ar1 && r.estimates.ar1_status != EstimateStatus::Ok
-        {
-            items.push(format!("ar1:{}", r.estimates.ar1_status.as_str()));
-        }
-        if r.se.iter().any(|s| !s.is_finite()) {
+        let cols: Vec<&str> = selected.into_iter().flat_map(|s| s.columns().iter().copied()).collect();
+        let undefined_se = cols
+            .iter()
+            .zip(&r.se)
+            .any(|(c, se)| !se.is_finite() && column_source(c).is_some_and(|s| in_use.contains(&s)));
+        if undefined_se {
             items.push("bootstrap:se_undefined".into());
         }
         if items.is_empty() {
@@ -191,82 +362,62 @@ impl TimescaleResult {
 
     /// One row per region: `region`, `status`, `n_valid_frames`, `lag1_acf`,
     /// then for each selected estimator its values, its `_status`, and (with
-    /// bootstrap) `_se_s` beside every timescale. A NaN cell always comes
-    /// with a non-`ok` status in the same row.
+    /// bootstrap) `_se_s` beside every timescale. A timescale cell is finite
+    /// exactly when its status is ok; fit parameters (`exp_amplitude`,
+    /// `knee_hz`, ...) of a converged but implausible fit are shown, so the
+    /// reason for the flag can be read. The overall `status` covers every
+    /// selected estimator.
     pub fn to_table(&self) -> Table {
+        self.to_table_for(&self.selected_sources())
+    }
+
+    /// As [`to_table`](Self::to_table), with the overall `status` column
+    /// covering only the sources `in_use` (every estimator keeps its own
+    /// `_status` column).
+    pub fn to_table_for(&self, in_use: &[ColumnSource]) -> Table {
         let rs = &self.regions;
         let f = |g: &dyn Fn(&RegionResult) -> f64| Column::F64(rs.iter().map(g).collect());
         let s = |g: &dyn Fn(&RegionResult) -> String| Column::Str(rs.iter().map(g).collect());
         let mut t = Table::new()
             .with("region", s(&|r| r.name.clone()))
-            .with("status", s(&|r| self.qc_string(r)))
+            .with("status", s(&|r| self.qc_string_for(r, in_use)))
             .with("n_valid_frames", Column::I64(rs.iter().map(|r| r.n_valid_frames as i64).collect()))
             .with("lag1_acf", f(&|r| r.estimates.lag1));
-        let names: Vec<&'static str> = RegionEstimates::empty(EstimateStatus::Ok)
-            .primary(&self.params)
-            .into_iter()
-            .map(|(n, _)| n)
-            .collect();
-        let se_col = |t: Table, name: &str| -> Table {
-            if self.params.bootstrap == 0 {
-                return t;
+        let names = self.timescale_columns();
+        for src in self.selected_sources() {
+            for &col in src.columns() {
+                t = t.with(col, f(&|r| r.estimates.value(col)));
+                if self.params.bootstrap > 0 {
+                    let i = names.iter().position(|n| *n == col).unwrap_or(0);
+                    let stem = col.strip_suffix("_s").unwrap_or(col);
+                    t = t.with(
+                        &format!("{stem}_se_s"),
+                        Column::F64(rs.iter().map(|r| r.se.get(i).copied().unwrap_or(f64::NAN)).collect()),
+                    );
+                }
             }
-            let i = names.iter().position(|n| *n == name).unwrap_or(0);
-            let col = name.strip_suffix("_s").unwrap_or(name);
-            t.with(
-                &format!("{col}_se_s"),
-                Column::F64(rs.iter().map(|r| r.se.get(i).copied().unwrap_or(f64::NAN)).collect()),
-            )
-        };
-        for &e in &self.params.estimators {
-            match e {
-                Estimator::InitialPositiveSum => {
-                    t = t.with("ips_tau_s", f(&|r| r.estimates.ips_s));
-                    t = se_col(t, "ips_tau_s");
-                }
-                Estimator::Acw50 => {
-                    t = t.with("acw50_s", f(&|r| r.estimates.acw50_s));
-                    t = se_col(t, "acw50_s");
-                    t = t.with("acw50_interp_s", f(&|r| r.estimates.acw50_interp_s));
-                    t = se_col(t, "acw50_interp_s");
-                }
-                Estimator::Acw0 => {
-                    t = t.with("acw0_s", f(&|r| r.estimates.acw0_s));
-                    t = se_col(t, "acw0_s");
-                    t = t.with("acw0_interp_s", f(&|r| r.estimates.acw0_interp_s));
-                    t = se_col(t, "acw0_interp_s");
-                }
-                Estimator::ExpFit => {
+            match src {
+                ColumnSource::Estimator(Estimator::ExpFit) => {
                     let x = |g: fn(&ExpFit) -> f64| {
                         f(&move |r: &RegionResult| r.estimates.exp.as_ref().map_or(f64::NAN, g))
                     };
-                    t = t.with("exp_tau_s", x(|e| e.tau_s));
-                    t = se_col(t, "exp_tau_s");
                     t = t.with("exp_amplitude", x(|e| e.amplitude)).with("exp_offset", x(|e| e.offset));
                     t = t
                         .with("exp_first_lag", x(|e| e.lags.0 as f64))
                         .with("exp_last_lag", x(|e| e.lags.1 as f64));
                 }
-                Estimator::SpectralKnee => {
+                ColumnSource::Estimator(Estimator::SpectralKnee) => {
                     let x = |g: fn(&KneeFit) -> f64| {
                         f(&move |r: &RegionResult| r.estimates.knee.as_ref().map_or(f64::NAN, g))
                     };
-                    t = t.with("knee_tau_s", x(|k| k.tau_s));
-                    t = se_col(t, "knee_tau_s");
                     t = t.with("knee_hz", x(|k| k.knee_hz)).with("knee_exponent", x(|k| k.exponent));
                 }
+                _ => {}
             }
             t = t.with(
-                &format!("{}_status", e.prefix()),
-                s(&move |r| r.estimates.status_of(e).as_str().to_string()),
+                &format!("{}_status", src.prefix()),
+                s(&move |r| r.estimates.status_of_source(src).as_str().to_string()),
             );
-        }
-        if self.params.bias_correction == BiasCorrection::Ar1 {
-            t = t.with("ar1_tau_s", f(&|r| r.estimates.ar1_tau_s));
-            t = se_col(t, "ar1_tau_s");
-            t = t.with("ar1_tau_corrected_s", f(&|r| r.estimates.ar1_tau_corrected_s));
-            t = se_col(t, "ar1_tau_corrected_s");
-            t = t.with("ar1_status", s(&|r| r.estimates.ar1_status.as_str().to_string()));
         }
         t
     }
@@ -381,7 +532,12 @@ pub fn estimate_timescales(
     let mut plan = AcfPlan::new(n, params.max_lag)?;
     let pairs = plan.pair_counts(valid);
     let knee = params.has(Estimator::SpectralKnee);
-    let welch = if knee { Some(WelchPlan::new(params.welch_segment, params.tr_s)?) } else { None };
+    let welch_segment_frames = knee
+        .then(|| params.welch_segment.unwrap_or_else(|| welch_segment_default(n, censored.then_some(valid))));
+    let welch = match welch_segment_frames {
+        Some(l) => Some(WelchPlan::new(l, params.tr_s)?),
+        None => None,
+    };
     let freqs = welch.as_ref().map(|w| w.frequencies_hz()).unwrap_or_default();
     let ws0 = Workspace {
         acf_plan: plan.clone(),
@@ -454,7 +610,13 @@ pub fn estimate_timescales(
         },
         None => run(),
     };
-    Ok(TimescaleResult { params: params.clone(), n_frames: n, n_valid_frames: n_valid, regions })
+    Ok(TimescaleResult {
+        params: params.clone(),
+        n_frames: n,
+        n_valid_frames: n_valid,
+        regions,
+        welch_segment_frames,
+    })
 }
 
 #[allow(clippy::too_many_arguments)]
@@ -581,6 +743,9 @@ fn estimate_one(
     }
     e.lag1 = acf[1];
     let tr = p.tr_s;
+    // pairs[0] is the number of valid frames of this (possibly resampled) series.
+    let n_valid = pairs[0] as usize;
+    let bounds = TauBounds::new(tr, n_valid);
     let set = |e: &mut RegionEstimates, est: Estimator, s: EstimateStatus| {
         let i = Estimator::ALL.iter().position(|x| *x == est).unwrap_or(0);
         e.status[i] = s;
@@ -606,7 +771,10 @@ fn estimate_one(
                 } else {
                     autocorrelation_window(acf, 0.5, tr).map(|v| v.1).unwrap_or(tr)
                 } / std::f64::consts::LN_2;
-                fit_exp_decay(acf, tr, p.fit_lags, start).map(|f| e.exp = Some(f))
+                fit_exp_decay(acf, tr, p.fit_lags, start).and_then(|f| {
+                    e.exp = Some(f);
+                    check_exp_fit(&f, bounds)
+                })
             }
             Estimator::SpectralKnee => {
                 let used = match ws.welch.as_mut() {
@@ -616,25 +784,33 @@ fn estimate_one(
                 if used == 0 {
                     Err(EstimateStatus::TooFewPoints)
                 } else {
-                    fit_spectral_knee(&ws.freqs, &ws.psd, p.knee_band_hz).map(|f| e.knee = Some(f))
+                    fit_spectral_knee(&ws.freqs, &ws.psd, p.knee_band_hz).and_then(|f| {
+                        e.knee = Some(f);
+                        check_knee_fit(&f, bounds)
+                    })
                 }
             }
         };
         set(&mut e, est, status.err().unwrap_or(EstimateStatus::Ok));
     }
     if p.bias_correction == BiasCorrection::Ar1 {
-        let n_valid = pairs[0] as usize;
         let r = ar1_timescale(e.lag1, tr).and_then(|t| {
             e.ar1_tau_s = t;
             ar1_timescale(marriott_pope_lag1(e.lag1, n_valid), tr)
         });
-        match r {
+        e.ar1_status = match r {
             Ok(t) => {
                 e.ar1_tau_corrected_s = t;
-                e.ar1_status = EstimateStatus::Ok;
+                // The same bounds as the fits: rho_1 within e^-10 of 0 or
+                // 1/n of 1 gives a tau the series cannot support.
+                if bounds.contains(e.ar1_tau_s) && bounds.contains(t) {
+                    EstimateStatus::Ok
+                } else {
+                    EstimateStatus::ImplausibleFit
+                }
             }
-            Err(s) => e.ar1_status = s,
-        }
+            Err(s) => s,
+        };
     }
     e
 }

@@ -67,4 +67,12 @@ pub enum TimescaleError {
         /// The frame, 1-based.
         frame: usize,
     },
+    /// A timescale column was asked for that the result does not hold.
+    #[error("no timescale column `{column}`; expected one of: {expected}")]
+    UnknownColumn {
+        /// The column asked for.
+        column: String,
+        /// The timescale columns of the result, comma separated.
+        expected: String,
+    },
 }

@@ -17,6 +17,11 @@ pub enum EstimateStatus {
     NotConverged,
     /// The fit converged to a point outside the model's domain (τ ≤ 0, knee ≤ 0, ...).
     InvalidFit,
+    /// The fit converged inside the model's domain but to a value the series
+    /// cannot support: amplitude ≤ 0, τ outside [`TauBounds`], or a knee
+    /// outside the fitted band. The raw fit is kept in the estimates for
+    /// inspection; its timescale is not reported (NaN in tables).
+    ImplausibleFit,
     /// The ACF or spectrum holds non-finite values where the estimator needs them.
     NonFiniteInput,
     /// Not enough lags, frequencies or segments for the estimator.
@@ -33,10 +38,44 @@ impl EstimateStatus {
             EstimateStatus::NoCrossing => "no_crossing",
             EstimateStatus::NotConverged => "not_converged",
             EstimateStatus::InvalidFit => "invalid_fit",
+            EstimateStatus::ImplausibleFit => "implausible_fit",
             EstimateStatus::NonFiniteInput => "non_finite_input",
             EstimateStatus::TooFewPoints => "too_few_points",
             EstimateStatus::NotComputed => "not_computed",
         }
+    }
+}
+
+/// The timescales a series of `n_valid_frames` frames sampled every `tr_s`
+/// seconds can support:
+///
+/// $$\tfrac{1}{10}\,\mathrm{TR}\;\le\;\tau\;\le\;N_{\mathrm{valid}}\,\mathrm{TR}.$$
+///
+/// Both ends are our choice (no published source). Below TR/10 the lag-1
+/// autocorrelation of an exponential decay is $e^{-10}\approx4.5\times10^{-5}$,
+/// far below the sampling error of any ACF ($\approx1/\sqrt{N}$, 0.01 even
+/// at $10^4$ frames), so such a τ is not identified by the data. Above the
+/// record length the decay never reaches $e^{-1}$ within the series, so τ is
+/// an extrapolation (a drift or a random walk fits as "infinitely slow").
+/// A fitted estimator whose τ falls outside is reported as
+/// [`EstimateStatus::ImplausibleFit`].
+#[derive(Clone, Copy, Debug, PartialEq, Serialize)]
+pub struct TauBounds {
+    /// Smallest supported τ, s (TR/10).
+    pub min_s: f64,
+    /// Largest supported τ, s (valid frames × TR).
+    pub max_s: f64,
+}
+
+impl TauBounds {
+    /// `[tr_s / 10, n_valid_frames × tr_s]`.
+    pub fn new(tr_s: f64, n_valid_frames: usize) -> Self {
+        TauBounds { min_s: tr_s / 10.0, max_s: n_valid_frames as f64 * tr_s }
+    }
+
+    /// Whether `tau_s` lies within the bounds (false for NaN).
+    pub fn contains(&self, tau_s: f64) -> bool {
+        tau_s >= self.min_s && tau_s <= self.max_s
     }
 }
 
@@ -77,7 +116,8 @@ pub fn autocorrelation_window(acf: &[f64], threshold: f64, tr_s: f64) -> Result<
     Ok((k as f64 * tr_s, ((k - 1) as f64 + frac) * tr_s))
 }
 
-/// Sum of the initial positive ACF times TR (Watanabe et al. 2019, Nat Commun):
+/// Sum of the initial positive ACF times TR (Watanabe, Rees & Masuda 2019,
+/// eLife 8:e42256; journal and article number from memory):
 ///
 /// $$\tau=\mathrm{TR}\sum_{k=1}^{K-1}\hat\rho_k,\qquad K=\min\{k\ge1:\hat\rho_k\le0\}$$
 ///
@@ -208,6 +248,20 @@ pub fn fit_exp_decay(acf: &[f64], tr_s: f64, lags: FitLags, tau0_s: f64) -> Resu
     Ok(fit)
 }
 
+/// Plausibility of an exponential fit (Murray et al. 2014 model): the
+/// amplitude must be positive, $a>0$ (a decaying, not a growing or inverted,
+/// autocorrelation), and τ must lie within `bounds`.
+///
+/// # Errors
+/// [`EstimateStatus::ImplausibleFit`] otherwise (also for NaN).
+pub fn check_exp_fit(fit: &ExpFit, bounds: TauBounds) -> Result<(), EstimateStatus> {
+    if fit.amplitude > 0.0 && bounds.contains(fit.tau_s) {
+        Ok(())
+    } else {
+        Err(EstimateStatus::ImplausibleFit)
+    }
+}
+
 /// A spectral-knee fit.
 #[derive(Clone, Copy, Debug, PartialEq, Serialize)]
 pub struct KneeFit {
@@ -221,6 +275,8 @@ pub struct KneeFit {
     pub knee: f64,
     /// Exponent χ.
     pub exponent: f64,
+    /// Lowest and highest frequency fitted, Hz.
+    pub band_fitted_hz: (f64, f64),
     /// LM iterations.
     pub iterations: usize,
     /// Residual sum of squares (log10 units).
@@ -299,9 +355,27 @@ pub fn fit_spectral_knee(
         offset: b,
         knee: k,
         exponent: chi,
+        band_fitted_hz: (fs[0], fs[fs.len() - 1]),
         iterations: rep.iterations,
         rss: 2.0 * rep.cost,
     })
+}
+
+/// Plausibility of a spectral-knee fit (Gao et al. 2020 model): the knee
+/// frequency must lie inside the band that was fitted,
+/// $f_{\rm lo}\le f_k\le f_{\rm hi}$ (outside it the "knee" is an
+/// extrapolation of a spectrum that shows no bend), and
+/// $\tau=1/(2\pi f_k)$ within `bounds`.
+///
+/// # Errors
+/// [`EstimateStatus::ImplausibleFit`] otherwise (also for NaN).
+pub fn check_knee_fit(fit: &KneeFit, bounds: TauBounds) -> Result<(), EstimateStatus> {
+    let (lo, hi) = fit.band_fitted_hz;
+    if fit.knee_hz >= lo && fit.knee_hz <= hi && bounds.contains(fit.tau_s) {
+        Ok(())
+    } else {
+        Err(EstimateStatus::ImplausibleFit)
+    }
 }
 
 /// AR(1) timescale from the lag-1 autocorrelation, $\tau=-\mathrm{TR}/\ln\hat\rho_1$,
@@ -379,6 +453,55 @@ mod tests {
         let fit = fit_spectral_knee(&f, &p, (0.0, 1.0)).unwrap();
         assert!((fit.knee - 0.0004).abs() < 1e-10 && (fit.exponent - 2.0).abs() < 1e-8, "{fit:?}");
         assert!((fit.tau_s - 1.0 / (2.0 * std::f64::consts::PI * 0.02)).abs() < 1e-6);
+    }
+
+    #[test]
+    fn anti_correlated_acf_fits_with_negative_amplitude_and_is_implausible() {
+        // rho_k = -0.8 * 0.5^k is exactly a(e^{-k TR/tau} + b) with a = -0.8,
+        // tau = TR/ln 2, b = 0: the fit converges to it (a valid point of the
+        // model) but an inverted decay is no timescale.
+        let tr = 2.0;
+        let acf: Vec<f64> = (0..=8).map(|k| if k == 0 { 1.0 } else { -0.8 * 0.5f64.powi(k) }).collect();
+        let fit = fit_exp_decay(&acf, tr, FitLags::Range { first: 1, last: 8 }, 3.0).unwrap();
+        assert!((fit.amplitude + 0.8).abs() < 1e-8 && (fit.tau_s - tr / 2f64.ln()).abs() < 1e-7, "{fit:?}");
+        let bounds = TauBounds::new(tr, 200);
+        assert_eq!(check_exp_fit(&fit, bounds), Err(EstimateStatus::ImplausibleFit));
+        // The clean AR(1) ACF phi^k stays ok.
+        let clean = fit_exp_decay(&ar1_acf(0.8, 30), tr, FitLags::Range { first: 1, last: 30 }, 5.0).unwrap();
+        assert_eq!(check_exp_fit(&clean, bounds), Ok(()));
+    }
+
+    #[test]
+    fn tau_bounds_are_tr_over_ten_to_the_record_length() {
+        let b = TauBounds::new(2.0, 240);
+        assert_eq!((b.min_s, b.max_s), (0.2, 480.0));
+        assert!(b.contains(0.2) && b.contains(480.0) && !b.contains(0.19) && !b.contains(481.0));
+        assert!(!b.contains(f64::NAN));
+        // A fit with a huge tau (drift read as an infinitely slow decay) or a
+        // tiny one is implausible even with a positive amplitude.
+        let mut f =
+            ExpFit { tau_s: 8.4e103, amplitude: 0.3, offset: 0.0, lags: (1, 4), iterations: 3, rss: 0.0 };
+        assert_eq!(check_exp_fit(&f, b), Err(EstimateStatus::ImplausibleFit));
+        f.tau_s = 0.01;
+        assert_eq!(check_exp_fit(&f, b), Err(EstimateStatus::ImplausibleFit));
+        f.tau_s = 5.0;
+        assert_eq!(check_exp_fit(&f, b), Ok(()));
+    }
+
+    #[test]
+    fn knee_outside_the_fitted_band_is_implausible() {
+        // Exact Lorentzians P = 3 / (f_k^2 + f^2) on f = j/256 Hz, j = 1..128
+        // (band 0.0039..0.5 Hz): the fit recovers f_k, inside or not.
+        let f: Vec<f64> = (0..=128).map(|j| j as f64 / 256.0).collect();
+        let b = TauBounds::new(1.0, 256);
+        for (fk, ok) in [(0.05, true), (2.0, false), (0.0005, false)] {
+            let p: Vec<f64> = f.iter().map(|f| 3.0 / (fk * fk + f * f)).collect();
+            let fit = fit_spectral_knee(&f, &p, (0.0, 1.0)).unwrap();
+            assert!((fit.knee_hz - fk).abs() < 1e-5 * fk, "{fk}: {fit:?}");
+            assert_eq!(fit.band_fitted_hz, (1.0 / 256.0, 0.5));
+            let want = if ok { Ok(()) } else { Err(EstimateStatus::ImplausibleFit) };
+            assert_eq!(check_knee_fit(&fit, b), want, "{fk}: {fit:?}");
+        }
     }
 
     #[test]

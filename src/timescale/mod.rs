@@ -16,12 +16,14 @@
 //!
 //! **Estimators** ([`estimators`]), all in seconds (TR `tr_s` in seconds):
 //! * initial positive sum $\mathrm{TR}\sum_{k=1}^{K-1}\hat\rho_k$, $K$ the
-//!   first lag with $\hat\rho_K\le0$ (Watanabe et al. 2019);
+//!   first lag with $\hat\rho_K\le0$ (Watanabe, Rees & Masuda 2019, eLife
+//!   8:e42256; journal and article number from memory);
 //! * ACW-50 and ACW-0, the first lag where $\hat\rho\le0.5$ or $\le0$,
 //!   plain or linearly interpolated (Honey et al. 2012; Golesorkhi et al. 2021);
 //! * exponential decay $\hat\rho_k\approx a(e^{-k\mathrm{TR}/\tau}+b)$ fitted
 //!   by least squares over a stated lag range (Murray et al. 2014);
-//! * spectral knee: Welch spectrum, fit of $\log_{10}P(f)=b-\log_{10}(k+f^\chi)$,
+//! * spectral knee: Welch spectrum (segment length by one rule shared by
+//!   every command, [`welch_segment_default`]), fit of $\log_{10}P(f)=b-\log_{10}(k+f^\chi)$,
 //!   $\tau=1/(2\pi k^{1/\chi})$ (Gao et al. 2020);
 //! * optionally the AR(1) timescale $-\mathrm{TR}/\ln\hat\rho_1$ with the
 //!   Marriott & Pope (1954) bias correction of $\hat\rho_1$.
@@ -44,7 +46,16 @@
 //!
 //! **Quality control.** Each region gets a [`RegionStatus`] and each
 //! estimator an [`EstimateStatus`]; a NaN in the output always has a non-ok
-//! status beside it.
+//! status beside it, and a timescale is reported only with status ok. A
+//! fitted or model-based timescale (exponential fit, spectral knee, AR(1))
+//! is ok only when it is plausible: $\mathrm{TR}/10\le\tau\le
+//! N_{\rm valid}\mathrm{TR}$ ([`TauBounds`], our choice), a positive
+//! amplitude for the exponential fit, and a knee inside the fitted band;
+//! otherwise it is `implausible_fit`. A consumer that uses one timescale
+//! column reads it with [`TimescaleResult::column_values`] (NaN unless ok)
+//! and counts flags with [`TimescaleResult::n_flagged_for`] over the
+//! [`ColumnSource`] of that column ([`column_source`]; its [`Estimator`] by
+//! [`column_estimator`]).
 //!
 //! Research software: results are not for clinical decisions.
 
@@ -58,9 +69,12 @@ pub mod preprocess;
 pub mod welch;
 
 pub use acf::{autocorrelation, masked_autocorrelation, AcfPlan};
-pub use algorithm::{estimate_timescales, RegionEstimates, RegionResult, RegionStatus, TimescaleResult};
+pub use algorithm::{
+    column_estimator, column_source, estimate_timescales, ColumnSource, RegionEstimates, RegionResult,
+    RegionStatus, TimescaleResult,
+};
 pub use error::TimescaleError;
-pub use estimators::{EstimateStatus, ExpFit, FitLags, KneeFit};
+pub use estimators::{EstimateStatus, ExpFit, FitLags, KneeFit, TauBounds};
 pub use params::{BiasCorrection, Estimator, TimescaleParams, ValidTimescaleParams};
 pub use preprocess::{censor_from_displacement, Confound, NuisanceModel, NuisanceSpec};
-pub use welch::{welch_density, WelchPlan};
+pub use welch::{segment_starts, welch_density, welch_segment_default, WelchPlan};

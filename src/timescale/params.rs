@@ -11,7 +11,7 @@ use serde::Serialize;
 #[serde(rename_all = "kebab-case")]
 #[non_exhaustive]
 pub enum Estimator {
-    /// Sum of the initial positive ACF × TR (Watanabe et al. 2019).
+    /// Sum of the initial positive ACF × TR (Watanabe, Rees & Masuda 2019, eLife).
     InitialPositiveSum,
     /// Lag where the ACF first drops to 0.5 (Honey et al. 2012).
     Acw50,
@@ -86,7 +86,9 @@ pub struct TimescaleParams {
     pub min_frames: Option<usize>,
     /// Lags of the exponential fit.
     pub fit_lags: FitLags,
-    /// Welch segment length in frames; `None` = min(256, n).
+    /// Welch segment length in frames; `None` = the shared rule
+    /// [`welch_segment_default`](super::welch::welch_segment_default),
+    /// resolved against the censoring mask when the timescales are estimated.
     pub welch_segment: Option<usize>,
     /// Frequency band of the knee fit in Hz; `None` = all positive frequencies.
     pub knee_band_hz: Option<(f64, f64)>,
@@ -108,8 +110,10 @@ impl TimescaleParams {
     /// (Box & Jenkins' advice to read the ACF up to about n/4 lags, from
     /// memory); demeaning only; min frames 2 × max lag (our choice: at least
     /// half the frames must survive censoring at the default lag bound);
-    /// exponential fit from lag 1 to the first zero; Welch segments of
-    /// min(256, n) frames (scipy's default `nperseg`); all positive
+    /// exponential fit from lag 1 to the first zero; Welch segments by the
+    /// rule of [`welch_segment_default`](super::welch::welch_segment_default)
+    /// (min(256, n) without censoring, scipy's default `nperseg`; shorter when
+    /// censoring would leave too few fully valid segments); all positive
     /// frequencies; no bootstrap; block ⌈n/10⌉ (our choice: pairs straddling
     /// a block join are decorrelated, which biases the SE low; measured on
     /// AR(1), φ = 0.8, n = 1200, the SE was 0.75–0.83 of the true spread with
@@ -182,13 +186,18 @@ impl TimescaleParams {
                 ));
             }
         }
-        let welch_segment = self.welch_segment.unwrap_or(n_frames.min(256));
-        if estimators.contains(&Estimator::SpectralKnee) && !(8..=n_frames).contains(&welch_segment) {
-            return Err(bad(
-                "welch-segment",
-                welch_segment.to_string(),
-                &format!("between 8 and the {n_frames} frames of the series"),
-            ));
+        let welch_segment = self.welch_segment;
+        let shortest = super::welch::WELCH_SEGMENT_MIN;
+        if estimators.contains(&Estimator::SpectralKnee) {
+            let given = welch_segment.unwrap_or(shortest);
+            if !(shortest..=n_frames).contains(&given) {
+                return Err(bad(
+                    "welch-segment",
+                    welch_segment
+                        .map_or_else(|| format!("(default, series of {n_frames} frames)"), |w| w.to_string()),
+                    &format!("between {shortest} and the {n_frames} frames of the series"),
+                ));
+            }
         }
         let nyquist = 0.5 / self.tr_s;
         let knee_band_hz = self.knee_band_hz.unwrap_or((0.0, nyquist));
@@ -245,8 +254,9 @@ pub struct ValidTimescaleParams {
     pub min_frames: usize,
     /// Lags of the exponential fit.
     pub fit_lags: FitLags,
-    /// Welch segment length.
-    pub welch_segment: usize,
+    /// Welch segment length as given (`None` = the shared rule, resolved per
+    /// series; the length used is [`TimescaleResult::welch_segment_frames`](super::TimescaleResult::welch_segment_frames)).
+    pub welch_segment: Option<usize>,
     /// Knee-fit band, Hz.
     pub knee_band_hz: (f64, f64),
     /// Bootstrap replicates.
@@ -275,7 +285,11 @@ mod tests {
     #[test]
     fn defaults_resolve_and_bad_values_are_named() {
         let v = TimescaleParams::new(0.72).check(1200).unwrap();
-        assert_eq!((v.max_lag, v.min_frames, v.welch_segment, v.block_frames), (300, 600, 256, 120));
+        assert_eq!((v.max_lag, v.min_frames, v.welch_segment, v.block_frames), (300, 600, None, 120));
+        let mut w = TimescaleParams::new(2.0);
+        w.welch_segment = Some(101);
+        assert!(w.check(100).unwrap_err().to_string().contains("welch-segment"));
+        assert!(TimescaleParams::new(2.0).check(7).unwrap_err().to_string().contains("welch-segment"));
         for tr in [0.0, -2.0, f64::NAN, f64::INFINITY] {
             let e = TimescaleParams::new(tr).check(100).unwrap_err().to_string();
             assert!(e.contains("`tr`"), "{e}");

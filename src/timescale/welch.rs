@@ -17,7 +17,10 @@ use std::sync::Arc;
 /// `detrend='constant'`, `scaling='density'`, `average='mean'`).
 ///
 /// With a frame mask, only segments whose every frame is valid are averaged
-/// (a censored frame inside a segment would break its Fourier transform).
+/// (a censored frame inside a segment would break its Fourier transform):
+/// the segments are laid along each maximal run of valid frames from its
+/// first frame, with the same step, as many as fit ([`segment_starts`]).
+/// Without censoring there is one run and the segments are scipy's.
 pub struct WelchPlan {
     segment: usize,
     fs_hz: f64,
@@ -90,27 +93,21 @@ impl WelchPlan {
         let l = self.segment;
         assert_eq!(out.len(), l / 2 + 1);
         out.fill(0.0);
-        let step = l - l / 2;
         let mut used = 0usize;
-        let mut start = 0usize;
-        while start + l <= x.len() {
+        for_each_segment(x.len(), valid, l, |start| {
             let seg = &x[start..start + l];
-            let usable = valid.is_none_or(|m| m[start..start + l].iter().all(|&v| v));
-            if usable {
-                let mean = seg.iter().sum::<f64>() / l as f64;
-                for ((b, v), w) in self.buf.iter_mut().zip(seg).zip(&self.window) {
-                    *b = (v - mean) * w;
-                }
-                self.r2c
-                    .process_with_scratch(&mut self.buf, &mut self.spec, &mut self.scratch)
-                    .expect("buffer lengths fixed by the plan");
-                for (o, c) in out.iter_mut().zip(&self.spec) {
-                    *o += c.norm_sqr();
-                }
-                used += 1;
+            let mean = seg.iter().sum::<f64>() / l as f64;
+            for ((b, v), w) in self.buf.iter_mut().zip(seg).zip(&self.window) {
+                *b = (v - mean) * w;
             }
-            start += step;
-        }
+            self.r2c
+                .process_with_scratch(&mut self.buf, &mut self.spec, &mut self.scratch)
+                .expect("buffer lengths fixed by the plan");
+            for (o, c) in out.iter_mut().zip(&self.spec) {
+                *o += c.norm_sqr();
+            }
+            used += 1;
+        });
         if used == 0 {
             out.fill(f64::NAN);
             return 0;
@@ -123,6 +120,97 @@ impl WelchPlan {
         }
         used
     }
+}
+
+/// Call `f(start)` for every Welch segment of `segment` frames: along each
+/// maximal run of valid frames (the whole series when `valid` is `None`),
+/// starts at the run's first frame and every `segment − ⌊segment/2⌋` frames
+/// after it while the segment fits in the run.
+fn for_each_segment(n: usize, valid: Option<&[bool]>, segment: usize, mut f: impl FnMut(usize)) {
+    let step = segment - segment / 2;
+    let mut run_start = 0usize;
+    while run_start < n {
+        let run_end = match valid {
+            None => n,
+            Some(m) => {
+                if !m[run_start] {
+                    run_start += 1;
+                    continue;
+                }
+                (run_start..n).find(|&t| !m[t]).unwrap_or(n)
+            }
+        };
+        let mut s = run_start;
+        while s + segment <= run_end {
+            f(s);
+            s += step;
+        }
+        run_start = run_end;
+    }
+}
+
+/// First frames of the Welch segments of `segment` frames over a series of
+/// `n` frames with frame mask `valid` (`None` = all valid), as used by
+/// [`WelchPlan::density_into`].
+pub fn segment_starts(n: usize, valid: Option<&[bool]>, segment: usize) -> Vec<usize> {
+    let mut out = Vec::new();
+    if segment > 0 {
+        for_each_segment(n, valid, segment, |s| out.push(s));
+    }
+    out
+}
+
+/// Longest Welch segment, in frames, that the default rule allows.
+pub const WELCH_SEGMENT_MAX: usize = 256;
+
+/// Shortest Welch segment, in frames (fewer than 5 positive frequencies
+/// cannot constrain the three-parameter knee model).
+pub const WELCH_SEGMENT_MIN: usize = 8;
+
+/// The Welch segment length used when none is given, shared by every
+/// command (`hierax timescales`, the per-subject job):
+///
+/// $$L=\max\bigl\{\,L\le\min(256,n):\ \mathrm{covered}(L)\ge\tfrac12N_{\rm valid}\bigr\},$$
+///
+/// where covered(L) counts the valid frames inside at least one fully valid
+/// segment of [`segment_starts`]; 8 when no length qualifies.
+///
+/// Reasoning. Without censoring this is $\min(256,n)$, scipy's default
+/// `nperseg` together with its fall-back to the series length for shorter
+/// series (scipy 1.14 `signal.welch`). Longer segments resolve lower
+/// frequencies, $f_1=1/(L\,\mathrm{TR})$, and a knee is accepted only
+/// inside the fitted band, so $L$ bounds the longest measurable timescale at
+/// $L\,\mathrm{TR}/2\pi$: the rule keeps $L$ as long as it can. With
+/// censoring, a segment must hold only valid frames, so a long $L$ may leave
+/// few or no segments; the rule shortens $L$ until the segments cover at
+/// least half of the valid frames, so that the spectrum describes most of
+/// the data (the one-half is our choice, no source). The length therefore
+/// depends on the censoring mask, and is reported with every result.
+pub fn welch_segment_default(n_frames: usize, valid: Option<&[bool]>) -> usize {
+    let cap = WELCH_SEGMENT_MAX.min(n_frames);
+    let Some(mask) = valid.filter(|m| m.len() == n_frames && m.iter().any(|v| !v)) else {
+        return cap.max(WELCH_SEGMENT_MIN);
+    };
+    // Maximal runs of valid frames.
+    let mut runs = Vec::new();
+    let mut len = 0usize;
+    for &v in mask.iter().chain(std::iter::once(&false)) {
+        if v {
+            len += 1;
+        } else if len > 0 {
+            runs.push(len);
+            len = 0;
+        }
+    }
+    let n_valid: usize = runs.iter().sum();
+    (WELCH_SEGMENT_MIN..=cap)
+        .rev()
+        .find(|&l| {
+            let step = l - l / 2;
+            let covered: usize = runs.iter().filter(|&&r| r >= l).map(|&r| l + (r - l) / step * step).sum();
+            2 * covered >= n_valid
+        })
+        .unwrap_or(WELCH_SEGMENT_MIN)
 }
 
 /// Welch density of `x` (see [`WelchPlan`]); returns `(frequencies_hz, density)`.
@@ -147,6 +235,40 @@ pub fn welch_density(x: &[f64], tr_s: f64, segment: usize) -> Result<(Vec<f64>, 
 #[cfg(test)]
 mod tests {
     use super::*;
+
+    #[test]
+    fn segments_follow_valid_runs_and_match_scipy_without_censoring() {
+        // Uncensored: scipy's grid 0, L-L/2, ... (signal.welch with noverlap = L//2).
+        assert_eq!(segment_starts(100, None, 32), vec![0, 16, 32, 48, 64]);
+        assert_eq!(segment_starts(100, Some(&[true; 100]), 32), vec![0, 16, 32, 48, 64]);
+        // Frame 40 censored: runs 0..40 and 41..100.
+        let mut m = vec![true; 100];
+        m[40] = false;
+        assert_eq!(segment_starts(100, Some(&m), 32), vec![0, 41, 57]);
+        // Every start is fully valid, by construction and by a naive check.
+        for s in segment_starts(100, Some(&m), 16) {
+            assert!(m[s..s + 16].iter().all(|&v| v));
+        }
+    }
+
+    #[test]
+    fn default_segment_is_scipys_without_censoring_and_shrinks_with_it() {
+        assert_eq!(welch_segment_default(1200, None), 256);
+        assert_eq!(welch_segment_default(240, None), 240);
+        assert_eq!(welch_segment_default(240, Some(&[true; 240])), 240);
+        // One censored frame in the middle of 240: runs of 120 and 119. L = 120
+        // covers 120 >= 239/2 frames; any L > 120 covers nothing.
+        let mut m = vec![true; 240];
+        m[120] = false;
+        assert_eq!(welch_segment_default(240, Some(&m)), 120);
+        // Every 10th frame censored: runs of 9; L = 9 covers everything, L = 10 nothing.
+        let m: Vec<bool> = (0..240).map(|t| t % 10 != 9).collect();
+        assert_eq!(welch_segment_default(240, Some(&m)), 9);
+        // Runs too short for any segment: the minimum, and the estimator will
+        // report too few points.
+        let m: Vec<bool> = (0..240).map(|t| t % 4 != 3).collect();
+        assert_eq!(welch_segment_default(240, Some(&m)), WELCH_SEGMENT_MIN);
+    }
 
     #[test]
     fn white_noise_level_matches_parseval() {
