@@ -70,6 +70,7 @@ pub const STATES: TableDef = TableDef {
         c("max_map_value", "map units", "largest map value in the state"),
         c("mean_timescale_s", "s", "mean of the regions' valid timescales"),
         c("asymmetry_potential", "energy", "least-squares potential phi with E[i,j] - E[j,i] ~ phi[j] - phi[i], mean 0 (Hodge decomposition, Jiang et al. 2011); decreasing along the hierarchy: bottom-up transitions are cheaper"),
+        c("within_state_quadratic_form", "1", "x'Ax for the state vector x and the normalised network A: within-state connectivity; with an undirected network and every node driven equally (continuous time) the potential is -2 x'Ax + constant"),
     ],
 };
 

@@ -75,6 +75,7 @@ pub fn states_table(r: &SubjectResult) -> Table {
         .col("max_map_value", Column::F64(st.bins.iter().map(|b| range(b, f64::max)).collect()))
         .col("mean_timescale_s", Column::F64(r.link.state_timescale_s.clone()))
         .col("asymmetry_potential", Column::F64(r.link.summary.asymmetry_decomposition.potential.clone()))
+        .col("within_state_quadratic_form", Column::F64(r.control.state_quadratic_form.clone()))
         .finish()
 }
 
@@ -109,7 +110,11 @@ pub fn pairs_table(pairs: &crate::link::PairTable) -> Table {
 
 /// `sub-XX_timescales.csv`: the timescale table with the region numbers in front.
 pub fn timescales_table(r: &SubjectResult) -> Table {
-    let t = r.timescales.result.to_table();
+    // The overall status covers the linked estimator only; the others keep their own status columns.
+    let t = r
+        .timescales
+        .result
+        .to_table_for(&[crate::timescale::ColumnSource::Estimator(r.timescales.estimator)]);
     let mut b =
         TableBuilder::new(&schema::TIMESCALES).col("region_number", ints((0..t.n_rows()).map(number)));
     for name in t.names() {
@@ -207,6 +212,13 @@ pub fn summary_json(r: &SubjectResult, prov: &Provenance, record: &SubjectRecord
         "n_valid_frames": r.n_valid_frames(),
         "timescale_column": r.timescales.column,
         "n_timescale_flagged": r.timescales.n_flagged,
+        "timescale_notes": [
+            format!("n_timescale_flagged counts regions whose {} is not ok; other estimators' statuses are in their own _status columns", r.timescales.column),
+            format!("the spectral knee uses Welch segments of {} frames, set by the timescale module's one rule: min(256, frames), shortened under censoring until fully valid segments cover half the valid frames (our choice)", r.timescales.result.welch_segment_frames.map_or("no".into(), |w| w.to_string())),
+            "a fitted timescale (exponential, spectral knee, AR(1)) outside [TR/10, valid frames x TR], with a non-positive amplitude, or with its knee outside the fitted band is implausible_fit and left NaN (bounds are our choice)".to_string(),
+        ],
+        "welch_segment_frames": r.timescales.result.welch_segment_frames,
+        "tau_bounds_s": { "min": r.config.params().tr_s / 10.0, "max": r.n_valid_frames() as f64 * r.config.params().tr_s },
         "state_timescale_s": r.link.state_timescale_s,
         "mean_bottom_up_energy": s.mean_bottom_up_energy,
         "mean_top_down_energy": s.mean_top_down_energy,
@@ -219,9 +231,13 @@ pub fn summary_json(r: &SubjectResult, prov: &Provenance, record: &SubjectRecord
         "asymmetry_decomposition": s.asymmetry_decomposition,
         "timescale_vs_hierarchy_spearman": r.link.timescale_hierarchy,
         "numerics": {
-            "energy_route": format!("{:?}", info.route).to_lowercase(),
+            "energy_route": info.route.name().to_string(),
             "gramian_condition": info.gramian_condition,
+            "gramian_condition_limit": info.condition_limit,
             "terminal_error_max": info.terminal_error_max,
+            "terminal_error_relative": info.terminal_error_relative,
+            "refusal_rule": "energies are refused, never written, when the Gramian condition exceeds the limit or a \
+                             transition misses its target by more than 1e-3 of the largest state norm",
             "warnings": info.warnings,
         },
         "tests": r.tests.iter().map(|t| json!({
@@ -302,7 +318,7 @@ fn h5_extras(r: &SubjectResult, prov: &Provenance, h5s: &mut H5Sink) {
         "energy: E[i,j] - E[j,i]",
     );
     let info = &r.control.info;
-    g.set_attr("energy_route", AttrValue::Str(format!("{:?}", info.route).to_lowercase()));
+    g.set_attr("energy_route", AttrValue::Str(info.route.name().to_string()));
     g.set_attr("gramian_condition", AttrValue::F64(info.gramian_condition));
     g.set_attr("terminal_error_max", AttrValue::F64(info.terminal_error_max));
     g.set_attr("warnings", AttrValue::StrList(info.warnings.clone()));

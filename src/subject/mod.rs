@@ -78,6 +78,20 @@ pub fn analyse_subject(
             ));
         }
     }
+    if let Some(p) = &control.closed_form_potential {
+        // The Hodge potential must equal the closed form up to its constant: a check of the energies.
+        let phi = &link.summary.asymmetry_decomposition.potential;
+        let mean = p.iter().sum::<f64>() / p.len() as f64;
+        let scale = p.iter().fold(0.0f64, |m, v| m.max((v - mean).abs())).max(f64::MIN_POSITIVE);
+        let err = p.iter().zip(phi).fold(0.0f64, |m, (a, b)| m.max((a - mean - b).abs())) / scale;
+        let close = err <= 1e-6;
+        if !close {
+            notes.push(format!(
+                "link: warning: the asymmetry potential differs from its closed form by {err:.2e} (relative); the \
+                 energies may have lost precision"
+            ));
+        }
+    }
     let network_nulls = stages::network_nulls(s, &states, &link, cfg)?;
     let map_nulls = stages::map_nulls(s, &sys, &timescales.tau, cfg)?;
     for run in network_nulls.iter().chain(map_nulls.iter()) {

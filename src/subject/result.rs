@@ -38,6 +38,11 @@ pub struct ControlStage {
     pub info: EnergyInfo,
     /// Average and modal controllability per region.
     pub metrics: NodeMetrics,
+    /// x_jᵀÃx_j per state: within-state connectivity of the normalised network.
+    pub state_quadratic_form: Vec<f64>,
+    /// The closed-form potential p_j with E_ij − E_ji = p_j − p_i, when the
+    /// system makes the asymmetry a pure potential (symmetric Ã, B = βI).
+    pub closed_form_potential: Option<Vec<f64>>,
 }
 
 /// Stage 4: link.

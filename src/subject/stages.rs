@@ -5,37 +5,28 @@ use super::config::{NullModel, ValidSubjectConfig};
 use super::outcomes::{NullFamily, Outcome, OutcomeSource};
 use super::result::{ControlStage, LinkStage, NullRow, NullRun, NullTest, TimescaleStage};
 use super::{LoadedSubject, SubjectError};
-use crate::control::{energy_matrix, node_metrics, Par, System};
+use crate::control::{energy_matrix, node_metrics, state_potentials, state_quadratic_forms, Par, System};
 use crate::hierarchy::{build_states, surrogate_maps, Order, SpatialInputs, States, StatesParams};
-use crate::io::table::Column;
 use crate::link::{self, SubjectSummary};
 use crate::stats::correlation::{spearman, Correlation};
 use crate::stats::inference::{benjamini_hochberg, permutation_p_value, Alternative};
 use crate::stats::nulls::{degree_preserving, geometry_preserving, strength_preserving, RewireInfo};
 use crate::stats::StatsError;
 use crate::timescale::{
-    censor_from_displacement, estimate_timescales, EstimateStatus, Estimator, NuisanceSpec, RegionStatus,
-    TimescaleParams,
+    censor_from_displacement, estimate_timescales, ColumnSource, Estimator, NuisanceSpec, TimescaleParams,
 };
 use ndarray::Array2;
 use rand::SeedableRng;
 use rand_chacha::ChaCha20Rng;
 use rayon::prelude::*;
 
-/// The timescale columns the job can link, with their estimator.
+/// The timescale columns the job can link.
 pub const TIMESCALE_COLUMNS: [&str; 7] =
     ["ips_tau_s", "acw50_s", "acw50_interp_s", "acw0_s", "acw0_interp_s", "exp_tau_s", "knee_tau_s"];
 
-/// The estimator behind a timescale column name.
+/// The estimator behind a timescale column name (the timescale module's one mapping).
 pub fn timescale_column_estimator(column: &str) -> Option<Estimator> {
-    Some(match column {
-        "ips_tau_s" => Estimator::InitialPositiveSum,
-        "acw50_s" | "acw50_interp_s" => Estimator::Acw50,
-        "acw0_s" | "acw0_interp_s" => Estimator::Acw0,
-        "exp_tau_s" => Estimator::ExpFit,
-        "knee_tau_s" => Estimator::SpectralKnee,
-        _ => return None,
-    })
+    crate::timescale::column_estimator(column)
 }
 
 /// Stage 1 (`timescale`): censor, regress confounds and estimate every
@@ -60,9 +51,8 @@ pub fn timescales(s: &LoadedSubject, cfg: &ValidSubjectConfig) -> Result<Timesca
         NuisanceSpec { demean: true, detrend_order: p.detrend_order, confounds: p.confound_columns.clone() };
     // Use the caller's thread pool: a pool of our own inside a subject would nest pools.
     tparams.threads = None;
-    if let Some(w) = p.welch_segment {
-        tparams.welch_segment = Some(w.min(n_frames));
-    }
+    // None: the timescale module's one segment rule, shared with `hierax timescales`.
+    tparams.welch_segment = p.welch_segment;
     let series_label = s.specs.series.to_string();
     let vparams = tparams
         .check(n_frames)
@@ -72,21 +62,10 @@ pub fn timescales(s: &LoadedSubject, cfg: &ValidSubjectConfig) -> Result<Timesca
     let estimator = timescale_column_estimator(&p.timescale_column).ok_or_else(|| {
         crate::param::ParamError::new("timescale_column", &p.timescale_column, TIMESCALE_COLUMNS.join(", "))
     })?;
-    let table = result.to_table();
-    let Some(Column::F64(values)) = table.column(&p.timescale_column) else {
-        return Err(crate::param::ParamError::new(
-            "timescale_column",
-            &p.timescale_column,
-            "a column the timescale estimators produced",
-        )
-        .into());
-    };
-    let usable = |r: &crate::timescale::RegionResult| {
-        r.status == RegionStatus::Ok && r.estimates.status_of(estimator) == EstimateStatus::Ok
-    };
-    let tau: Vec<f64> =
-        result.regions.iter().zip(values).map(|(r, &v)| if usable(r) { v } else { f64::NAN }).collect();
-    let n_flagged = result.regions.iter().filter(|r| !usable(r)).count();
+    let tau = result
+        .column_values(&p.timescale_column)
+        .map_err(|source| SubjectError::Timescales { input: series_label.clone(), source })?;
+    let n_flagged = result.n_flagged_for(&[ColumnSource::Estimator(estimator)]);
     Ok(TimescaleStage { column: p.timescale_column.clone(), estimator, tau, n_flagged, result })
 }
 
@@ -128,7 +107,13 @@ pub fn control(
     let sys = System::new(s.weights.view(), cfg.params().directed, &vsys, par).map_err(err)?;
     let (energy, info) = energy_matrix(&sys, states.matrix.view()).map_err(err)?;
     let metrics = node_metrics(&sys).map_err(err)?;
-    Ok((ControlStage { energy, info, metrics }, sys))
+    let state_quadratic_form = state_quadratic_forms(&sys, states.matrix.view()).map_err(err)?;
+    let closed_form_potential = if sys.asymmetry_is_potential() {
+        Some(state_potentials(&sys, states.matrix.view()).map_err(err)?)
+    } else {
+        None
+    };
+    Ok((ControlStage { energy, info, metrics, state_quadratic_form, closed_form_potential }, sys))
 }
 
 /// Stage 4 (`link`): per-state timescales, the pair table, its summaries and
