@@ -2,6 +2,7 @@
 
 mod bad_input;
 mod cli;
+mod cohort;
 mod control;
 mod demo_data;
 mod hierarchy;
