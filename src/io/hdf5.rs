@@ -444,6 +444,7 @@ pub fn read(spec: &InputSpec) -> Result<LoadedArray, IoError> {
         let ds = file
             .dataset(h5_path)
             .map_err(|e| IoError::format(path, format!("{kind} `{}`: {}", info.path, one_line(&e))))?;
+        check_declared_size(path, &info.path, &ds)?;
         let (values, note) = read_values(path, &info.path, &ds)?;
         notes.extend(note);
         let raw_shape = to_usize_shape(path, &ds.shape().map_err(|e| read_err(path, &info.path, &ds, &e))?)?;
@@ -488,6 +489,32 @@ fn read_err(path: &Path, name: &str, ds: &h5::Dataset, e: &h5::Error) -> IoError
 }
 
 const EXACT_INT: u64 = 1 << 53;
+
+/// Refuse a dataset whose declared shape needs more memory than the file
+/// could hold: more than [`MAX_EXPANSION`] bytes of float64 per byte of file
+/// (deflate's largest ratio is about 1032:1; unallocated chunks read as fill
+/// values, so a tiny corrupt file can otherwise declare terabytes and abort
+/// the process before any read fails).
+fn check_declared_size(path: &Path, name: &str, ds: &h5::Dataset) -> Result<(), IoError> {
+    let shape = ds.shape().map_err(|e| read_err(path, name, ds, &e))?;
+    let elements = shape.iter().try_fold(1u64, |acc, &d| acc.checked_mul(d));
+    let file_bytes = std::fs::metadata(path).map(|m| m.len()).unwrap_or(0);
+    let limit = file_bytes.saturating_mul(MAX_EXPANSION).max(1 << 20);
+    match elements.and_then(|n| n.checked_mul(8)) {
+        Some(bytes) if bytes <= limit => Ok(()),
+        _ => Err(IoError::format(
+            path,
+            format!(
+                "dataset `{name}` declares shape {shape:?}, more than a {file_bytes}-byte file can hold; the file is \
+                 corrupt"
+            ),
+        )),
+    }
+}
+
+/// Bytes of decoded float64 allowed per byte of an HDF5 file (deflate's
+/// largest expansion, about 1032:1, rounded up).
+const MAX_EXPANSION: u64 = 1100;
 
 /// The values of a numeric dataset as `f64`, flat, in stored order, with a
 /// note when integers beyond 2^53 had to be rounded.
