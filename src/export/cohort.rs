@@ -91,7 +91,7 @@ pub fn run_log_table(run: &[SubjectStatus]) -> Table {
             Column::Str(
                 run.iter()
                     .map(|s| match (&s.record, &s.error) {
-                        (Some(r), _) => r.notes.join("; "),
+                        (Some(r), _) => format!("{} note(s) in {}_summary.json", r.n_notes, r.subject),
                         (None, e) => e.clone().unwrap_or_default(),
                     })
                     .collect(),

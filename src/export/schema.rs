@@ -191,7 +191,11 @@ pub const RUN_LOG: TableDef = TableDef {
     columns: &[
         c("subject", "-", "sub-<label>"),
         c("status", "-", "ok or failed"),
-        c("message", "-", "notes of a subject that succeeded, or the reason it failed"),
+        c(
+            "message",
+            "-",
+            "how many notes a unit that succeeded has in its summary JSON, or the reason it failed",
+        ),
     ],
 };
 

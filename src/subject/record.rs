@@ -31,8 +31,9 @@ pub struct SubjectRecord {
     pub terminal_error_max: f64,
     /// Each null test's key and p-value, in the job's order.
     pub tests: Vec<(String, f64)>,
-    /// Notes.
-    pub notes: Vec<String>,
+    /// Number of notes in the unit's summary (the notes themselves stay on
+    /// disk, so memory does not grow with them).
+    pub n_notes: usize,
     /// The folder written.
     pub output: PathBuf,
 }
@@ -52,7 +53,7 @@ impl SubjectRecord {
             gramian_condition: r.control.info.gramian_condition,
             terminal_error_max: r.control.info.terminal_error_max,
             tests: r.tests.iter().map(|t| (t.key(), t.p_value)).collect(),
-            notes: r.notes.clone(),
+            n_notes: r.notes.len(),
             output,
         }
     }
