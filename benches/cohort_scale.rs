@@ -47,8 +47,8 @@ fn make_base(dir: &Path) {
             }
         }
         let mut t = Table::new();
-        for j in 0..N {
-            t = t.with(&header[j], Column::F64(w.column(j).to_vec()));
+        for (j, name) in header.iter().enumerate() {
+            t = t.with(name, Column::F64(w.column(j).to_vec()));
         }
         t.write_csv(&dir.join(format!("base{b}_connectome.csv"))).unwrap();
         // AR(1) series whose coefficient rises along the map (a planted timescale gradient).
