@@ -2,7 +2,7 @@
 //!
 //! 1. The full k = 20 energy matrix (continuous time, B = I) for n = 400 and
 //!    n = 1000, against numpy's `linalg.eigh` of the same matrix, timed in the
-//!    same run (benches/control_numpy.py under /opt/hierax-ref/bin/python).
+//!    same run (benches/control_numpy.py under `$HIERAX_REF_PYTHON`, default `python3`).
 //!    Target: hierax's whole energy matrix within 1.5x of that single eigh.
 //! 2. 1000 networks of n = 200, each with its 16 x 16 energy matrix, rayon
 //!    over networks on 2 threads with one thread per faer call: networks/s.
@@ -65,7 +65,7 @@ fn main() {
         partial_driver_routes();
         return;
     }
-    let python = std::env::var("HIERAX_REF_PYTHON").unwrap_or_else(|_| "/opt/hierax-ref/bin/python".into());
+    let python = std::env::var("HIERAX_REF_PYTHON").unwrap_or_else(|_| "python3".into());
     let script = concat!(env!("CARGO_MANIFEST_DIR"), "/benches/control_numpy.py");
     let dir = std::env::temp_dir().join(format!("hierax-bench-{}", std::process::id()));
     std::fs::create_dir_all(&dir).expect("temp dir");

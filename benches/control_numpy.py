@@ -2,7 +2,7 @@
 of the same matrix, median wall time over REPS runs.
 
 Usage: control_numpy.py MATRIX.npy REPS   (prints seconds)
-Run by the Rust bench under /opt/hierax-ref/bin/python (numpy 2.1.3).
+Run by the Rust bench under $HIERAX_REF_PYTHON (numpy 2.1.3).
 """
 import sys
 import time

@@ -7,7 +7,7 @@
 //! as `src/cohort/subject.rs` runs it. Target: < 30 s wall on 2 cores.
 //!
 //! Baseline in the same run: benches/subject_nulls_numpy.py under
-//! /opt/hierax-ref/bin/python (numpy 2.1.3, scipy 1.14.1), the same job
+//! `$HIERAX_REF_PYTHON` (default `python3`; numpy 2.1.3, scipy 1.14.1), the same job
 //! written plainly (Python swap loop, eigh, per-pair `numpy.linalg.solve`)
 //! with OpenBLAS pinned to 2 threads, on fewer nulls and scaled per null.
 //! Both sides also compute the energy matrix of the unrewired network, and
@@ -20,7 +20,7 @@
 use hierax::control::{energy_matrix, Par, System, SystemParams, ValidSystemParams};
 use hierax::hierarchy::{build_states, StatesParams};
 use hierax::link::{pair_table, summarise, SubjectSummary};
-use hierax::stats::nulls::degree_preserving;
+use hierax::stats::nulls::{rewire as randomise, Network, NullModel, NullParams};
 use ndarray::{Array1, Array2};
 use rand::{Rng, SeedableRng};
 use rand_chacha::{ChaCha20Rng, ChaCha8Rng};
@@ -73,7 +73,9 @@ fn states(n: usize, k: usize, seed: u64) -> (Array2<f64>, Vec<f64>) {
 fn rewire(w: &Array2<f64>, i: usize) -> Array2<f64> {
     let mut rng = ChaCha20Rng::seed_from_u64(SEED);
     rng.set_stream(1 + i as u64);
-    degree_preserving(w, SWAPS_PER_EDGE, &mut rng).expect("valid network").0
+    let net = Network::new(w.view(), None, false).expect("valid network");
+    let p = NullParams { swaps_per_edge: SWAPS_PER_EDGE, ..NullParams::default() };
+    randomise(NullModel::DegreeSwap, &net, &p, &mut rng).expect("valid network").0
 }
 
 fn summarise_network(w: &Array2<f64>, p: &ValidSystemParams, x: &Array2<f64>, tau: &[f64]) -> SubjectSummary {
@@ -103,7 +105,7 @@ fn parse_numpy(stdout: &str) -> Option<NumpyTimes> {
 }
 
 fn main() {
-    let python = std::env::var("HIERAX_REF_PYTHON").unwrap_or_else(|_| "/opt/hierax-ref/bin/python".into());
+    let python = std::env::var("HIERAX_REF_PYTHON").unwrap_or_else(|_| "python3".into());
     let script = concat!(env!("CARGO_MANIFEST_DIR"), "/benches/subject_nulls_numpy.py");
     let dir = std::env::temp_dir().join(format!("hierax-bench-nulls-{}", std::process::id()));
     std::fs::create_dir_all(&dir).expect("temp dir");

@@ -1,5 +1,5 @@
 """Baseline for benches/subject_nulls.rs: the per-subject null job written the
-plain way with numpy/scipy (numpy 2.1.3, scipy 1.14.1 under /opt/hierax-ref).
+plain way with numpy/scipy (numpy 2.1.3, scipy 1.14.1, under $HIERAX_REF_PYTHON).
 
 For each null: degree-preserving double-edge swaps (Maslov & Sneppen 2002) in
 a Python loop, 10 attempts per edge; continuous-time normalisation

@@ -3,7 +3,7 @@
 //! matrices. Prints wall time of each, their ratio, hierax's peak memory
 //! relative to the input array, and a cross-check of the estimates.
 //!
-//! Run: `cargo bench --bench timescale_bench` (needs /opt/hierax-ref/bin/python;
+//! Run: `cargo bench --bench timescale_bench` (needs numpy under `$HIERAX_REF_PYTHON`, default `python3`;
 //! set HIERAX_BENCH_SMALL_ONLY=1 to skip the 91,282-region case).
 //! The data are invented: AR(1) series with coefficients spread over
 //! 0.3..0.95, seeded.
@@ -18,7 +18,6 @@ use std::path::Path;
 use std::process::Command;
 use std::time::Instant;
 
-const PYTHON: &str = "/opt/hierax-ref/bin/python";
 const TR_S: f64 = 0.72; // common multiband resting-state TR (common practice, no source)
 
 fn make(n_frames: usize, n_regions: usize, seed: u64) -> Array2<f64> {
@@ -58,7 +57,7 @@ fn case(label: &str, n_frames: usize, n_regions: usize, max_lag: usize, repeats:
     let nfft = fast_fft_len(n_frames + max_lag);
     let check = 200.min(n_regions);
 
-    let out = Command::new(PYTHON)
+    let out = Command::new(std::env::var("HIERAX_REF_PYTHON").unwrap_or_else(|_| "python3".into()))
         .arg(concat!(env!("CARGO_MANIFEST_DIR"), "/benches/timescale_numpy.py"))
         .arg(&path)
         .args([

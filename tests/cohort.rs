@@ -202,7 +202,14 @@ fn a_run_killed_at_any_point_resumes_to_the_uninterrupted_result() {
     let data = small_cohort(dir.path(), &ids);
     let reference = dir.path().join("reference");
     let started = std::time::Instant::now();
-    assert!(run(cohort_cmd(&data, &reference).args(["--network-nulls", "19"])).status.success());
+    assert!(run(cohort_cmd(&data, &reference).args([
+        "--network-nulls",
+        "19",
+        "--null-model",
+        "weight-permutation"
+    ]))
+    .status
+    .success());
     let full_ms = started.elapsed().as_millis() as u64;
     let want = csv_contents(&reference);
     // Kill points spread over the length of an uninterrupted run, so some kill lands mid-run.
@@ -210,7 +217,7 @@ fn a_run_killed_at_any_point_resumes_to_the_uninterrupted_result() {
     for (k, delay_ms) in [full_ms / 10, full_ms / 3, full_ms * 2 / 3].into_iter().enumerate() {
         let out = dir.path().join(format!("killed-{k}"));
         let mut child = cohort_cmd(&data, &out)
-            .args(["--network-nulls", "19"])
+            .args(["--network-nulls", "19", "--null-model", "weight-permutation"])
             .stdout(std::process::Stdio::null())
             .stderr(std::process::Stdio::null())
             .spawn()
@@ -236,7 +243,12 @@ fn a_run_killed_at_any_point_resumes_to_the_uninterrupted_result() {
                 }
             }
         }
-        let o = run(cohort_cmd(&data, &out).args(["--network-nulls", "19"]));
+        let o = run(cohort_cmd(&data, &out).args([
+            "--network-nulls",
+            "19",
+            "--null-model",
+            "weight-permutation",
+        ]));
         assert!(o.status.success(), "resume after kill {k}");
         assert_eq!(csv_contents(&out), want, "kill {k}: resumed results differ");
         assert!(!files_below(&out).iter().any(|p| p.to_string_lossy().contains("partial")));

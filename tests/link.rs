@@ -60,10 +60,12 @@ fn link_command_summarises_an_energy_matrix() {
     let o = run(hierax().arg("link").arg("--energy").arg(e.join("energy_matrix.csv")).arg("--out").arg(&l));
     assert!(o.status.success());
     // Bottom-up mean by hand from the matrix: the 6 entries above the diagonal of a 4 x 4 matrix.
-    let m = hierax::io::read_array(&hierax::io::InputSpec::new(e.join("energy_matrix.csv"), None))
-        .unwrap()
-        .matrix()
-        .unwrap();
+    let m = hierax::export::energy::read_state_matrix(&hierax::io::InputSpec::new(
+        e.join("energy_matrix.csv"),
+        None,
+    ))
+    .unwrap();
+    assert_eq!(m.dim(), (4, 4));
     let bu: f64 =
         (0..4).flat_map(|i| ((i + 1)..4).map(move |j| (i, j))).map(|(i, j)| m[[i, j]]).sum::<f64>() / 6.0;
     let v: serde_json::Value =

@@ -212,7 +212,7 @@ fn subject_rejects_a_missing_confound_column() {
 #[test]
 fn subject_geometry_nulls_need_distances() {
     subject_case(
-        &["--network-nulls", "40", "--null-model", "geometry"],
+        &["--network-nulls", "40", "--null-model", "geometry-swap"],
         &["geometry-swap network nulls need --distances"],
     );
 }

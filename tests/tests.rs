@@ -9,6 +9,7 @@ mod hierarchy;
 mod io_arrays;
 mod io_h5;
 mod link;
+mod nulls;
 mod stats;
 mod subject;
 mod timescale;

@@ -5,10 +5,12 @@ use anyhow::{anyhow, bail, Context};
 use clap::Args;
 use hierax::control::penalised::{penalised_energy_matrix, PenaltyParams};
 use hierax::control::states::states_from_matrix;
-use hierax::control::{self, tables, Drivers, Par, System, SystemParams};
+use hierax::control::{self, Drivers, Par, System, SystemParams};
+use hierax::export;
+use hierax::export::folder::{write_folder, Marker};
 use hierax::hierarchy::{build_states, StatesParams};
 use hierax::io::provenance::{InputRecord, Provenance};
-use hierax::io::table::{write_json, Column, Table};
+use hierax::io::table::write_json;
 use hierax::io::validate::{self, ConnectomeRules};
 use hierax::io::{read_array, InputSpec};
 use std::path::PathBuf;
@@ -200,10 +202,9 @@ pub fn run(args: EnergyArgs) -> anyhow::Result<ExitCode> {
     };
 
     // Tables, all built before anything is written.
-    let tidy = tables::pair_table(energy.view(), penalised.as_ref().map(|p| p.0.view()));
-    let names: Vec<String> =
-        conn.names.clone().unwrap_or_else(|| (1..=n).map(|i| format!("region_{i}")).collect());
-    let nodes = tables::node_table(&names, valid.input_weights(), &metrics);
+    let tidy = export::energy::pairs_table(energy.view(), penalised.as_ref().map(|p| p.0.view()));
+    let names: Vec<String> = conn.names.clone().unwrap_or_else(|| hierax::io::default_region_names(n));
+    let nodes = export::energy::node_metrics_table(&names, valid.input_weights(), &metrics);
     let mut qc_names = vec![
         "gramian_condition",
         "gramian_condition_limit",
@@ -224,9 +225,8 @@ pub fn run(args: EnergyArgs) -> anyhow::Result<ExitCode> {
         qc_names.extend(["penalised_costate_pivot_ratio", "penalised_terminal_error_max"]);
         qc_vals.extend([pi.costate_pivot_ratio, pi.terminal_error_max]);
     }
-    let qc = Table::new()
-        .with("measure", Column::Str(qc_names.iter().map(|s| s.to_string()).collect()))
-        .with("value", Column::F64(qc_vals));
+    let measures: Vec<(&str, f64)> = qc_names.iter().copied().zip(qc_vals).collect();
+    let qc = export::energy::qc_table(&measures);
     let mut warnings = info.warnings.clone();
     if let Some((_, pi)) = &penalised {
         warnings.extend(pi.warnings.iter().cloned());
@@ -242,6 +242,8 @@ pub fn run(args: EnergyArgs) -> anyhow::Result<ExitCode> {
         "energy_convention": "E[i, j] = minimum input energy int ||u||^2 dt from state i to state j in horizon T",
         "node_metrics_convention": metrics.convention,
     });
+    let digests: Vec<String> = inputs.iter().map(|r| r.sha256.clone()).collect();
+    let marker = Marker::new("energy", &parameters, &digests.iter().map(String::as_str).collect::<Vec<_>>());
     let mut prov = Provenance::new("energy", parameters);
     prov.inputs = inputs;
     let json = serde_json::json!({
@@ -254,12 +256,15 @@ pub fn run(args: EnergyArgs) -> anyhow::Result<ExitCode> {
     });
 
     let out = &args.out;
-    tidy.write_csv(&out.join("energy.csv"))?;
-    tables::matrix_table(energy.view()).write_csv(&out.join("energy_matrix.csv"))?;
-    tables::matrix_table(asym.view()).write_csv(&out.join("asymmetry_matrix.csv"))?;
-    nodes.write_csv(&out.join("node_metrics.csv"))?;
-    qc.write_csv(&out.join("qc.csv"))?;
-    write_json(&out.join("control.json"), &json)?;
+    // All six files or none: assembled in a hidden folder, renamed into place.
+    write_folder(out, marker, |dir| {
+        tidy.write_csv(&dir.join("energy.csv"))?;
+        export::energy::state_matrix_table(energy.view()).write_csv(&dir.join("energy_matrix.csv"))?;
+        export::energy::state_matrix_table(asym.view()).write_csv(&dir.join("asymmetry_matrix.csv"))?;
+        nodes.write_csv(&dir.join("node_metrics.csv"))?;
+        qc.write_csv(&dir.join("qc.csv"))?;
+        write_json(&dir.join("control.json"), &json)
+    })?;
 
     for w in &warnings {
         eprintln!("hierax: warning: {w}");

@@ -52,7 +52,7 @@ pub struct LinkArgs {
 
 pub fn run(args: LinkArgs) -> anyhow::Result<ExitCode> {
     let espec = InputSpec::parse(&args.energy)?;
-    let energy = read_array(&espec)?.matrix()?;
+    let energy = hierax::export::energy::read_state_matrix(&espec)?;
     let mut inputs = vec![InputRecord::of("energy", &espec)?];
     let k = energy.nrows();
     let state_tau: Option<Vec<f64>> = if let Some(s) = &args.state_timescales {

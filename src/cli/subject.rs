@@ -10,17 +10,6 @@ use std::collections::BTreeMap;
 use std::path::{Path, PathBuf};
 use std::process::ExitCode;
 
-/// Command-line spelling of [`NullModel`].
-#[derive(Clone, Copy, Debug, clap::ValueEnum)]
-pub enum NullModelArg {
-    /// Degree-preserving edge swaps (Maslov & Sneppen 2002).
-    Degree,
-    /// Swaps, then weights matched to node strengths (after Rubinov & Sporns 2011).
-    Strength,
-    /// Swaps that keep each edge's length bin (after Betzel & Bassett 2018); needs --distances.
-    Geometry,
-}
-
 /// Command-line spelling of [`TimeModel`].
 #[derive(Clone, Copy, Debug, clap::ValueEnum)]
 pub enum TimeModelArg {
@@ -91,9 +80,11 @@ pub struct JobOptions {
     #[arg(long, default_value_t = 0, value_name = "M")]
     pub network_nulls: usize,
 
-    /// Network null model.
-    #[arg(long, value_enum, default_value = "degree")]
-    pub null_model: NullModelArg,
+    /// Network null model. Each test asks whether an outcome depends on what the model randomises,
+    /// beyond what it keeps; a model that cannot move this network (e.g. swaps on a dense
+    /// connectome) is refused with the reason. Directed connectomes get directed nulls.
+    #[arg(long, value_enum, default_value = "degree-swap")]
+    pub null_model: NullModel,
 
     /// Number of surrogate hierarchy maps for map nulls (0 = none).
     #[arg(long, default_value_t = 0, value_name = "M")]
@@ -130,11 +121,7 @@ impl JobOptions {
         sys.stability_offset = self.stability_offset;
         c.system = sys;
         c.network_nulls = self.network_nulls;
-        c.null_model = match self.null_model {
-            NullModelArg::Degree => NullModel::Degree,
-            NullModelArg::Strength => NullModel::Strength,
-            NullModelArg::Geometry => NullModel::Geometry,
-        };
+        c.null_model = self.null_model;
         c.map_nulls = self.map_nulls;
         c.map_null_method = self.map_null_method;
         c.fdr_alpha = self.fdr_alpha;

@@ -7,8 +7,8 @@ use hierax::io::table::write_json;
 use hierax::io::validate::{self, Orientation};
 use hierax::io::{read_array, InputSpec};
 use hierax::timescale::{
-    censor_from_displacement, estimate_timescales, BiasCorrection, Confound, Estimator, FitLags,
-    NuisanceSpec, RegionStatus, TimescaleParams,
+    censor_from_displacement, estimate_timescales, BiasCorrection, ColumnSource, Confound, Estimator,
+    FitLags, NuisanceSpec, RegionStatus, TimescaleParams,
 };
 use std::path::PathBuf;
 use std::process::ExitCode;
@@ -186,7 +186,7 @@ pub fn run(args: TimescalesArgs) -> anyhow::Result<ExitCode> {
     let series = validate::series(la, orientation, args.regions)?;
     let (n_frames, n_regions) = series.data.dim();
     let names: Vec<String> =
-        series.names.clone().unwrap_or_else(|| (1..=n_regions).map(|i| format!("region_{i}")).collect());
+        series.names.clone().unwrap_or_else(|| hierax::io::default_region_names(n_regions));
     let mut inputs = vec![InputRecord::of("series", &spec)?];
 
     // Confounds table: every column by header name.
@@ -280,7 +280,12 @@ pub fn run(args: TimescalesArgs) -> anyhow::Result<ExitCode> {
             valid_params.min_frames
         );
     }
-    let table = result.to_table();
+    let mut in_use: Vec<ColumnSource> =
+        valid_params.estimators.iter().map(|e| ColumnSource::Estimator(*e)).collect();
+    if valid_params.bias_correction == BiasCorrection::Ar1 {
+        in_use.push(ColumnSource::Ar1);
+    }
+    let table = hierax::export::subject::timescale_table(&result, &in_use);
     let mut status_counts = std::collections::BTreeMap::<String, usize>::new();
     for r in &result.regions {
         *status_counts.entry(result.qc_string(r)).or_default() += 1;
@@ -306,12 +311,17 @@ pub fn run(args: TimescalesArgs) -> anyhow::Result<ExitCode> {
     });
     let csv = args.out.join("timescales.csv");
     let json = args.out.join("timescales.json");
-    table.write_csv(&csv)?;
-    if let Err(e) = write_json(&json, &serde_json::json!({"provenance": prov, "summary": summary})) {
-        // Never leave half an output: the table without its provenance.
-        let _ = std::fs::remove_file(&csv);
-        return Err(e.into());
-    }
+    let digests: Vec<String> = prov.inputs.iter().map(|r| r.sha256.clone()).collect();
+    let marker = hierax::export::folder::Marker::new(
+        "timescales",
+        &prov.parameters,
+        &digests.iter().map(String::as_str).collect::<Vec<_>>(),
+    );
+    // Both files or neither: assembled in a hidden folder, renamed into place.
+    hierax::export::folder::write_folder(&args.out, marker, |dir| {
+        table.write_csv(&dir.join("timescales.csv"))?;
+        write_json(&dir.join("timescales.json"), &serde_json::json!({"provenance": prov, "summary": summary}))
+    })?;
     let flagged = result.n_flagged();
     if flagged > 0 {
         eprintln!(

@@ -52,9 +52,9 @@
 //! which keeps about `√κ·ε` relative accuracy where forming `W_T` keeps `κ·ε`.
 //!
 //! # Outputs
-//! Results are plain arrays (`ndarray`) with their info structs; [`tables`]
-//! turns them into tidy tables (one row per ordered pair of states, one row
-//! per region) for CSV or any other writer.
+//! Results are plain arrays (`ndarray`) with their info structs; the
+//! `export` module turns them into tables (one row per ordered pair of
+//! states, one row per region) and names every file and column.
 //!
 //! # Threads
 //! Every dense kernel runs with the [`Par`] given to [`System::new`]
@@ -72,7 +72,6 @@ mod params;
 pub mod penalised;
 pub mod states;
 mod system;
-pub mod tables;
 pub mod trajectory;
 
 pub use energy::{

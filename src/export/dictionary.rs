@@ -36,6 +36,8 @@ pub fn markdown() -> String {
             "subject"
         } else if t.row.contains("(hierax states)") {
             "hierax states"
+        } else if t.row.contains("(hierax energy)") {
+            "hierax energy"
         } else {
             "cohort"
         };

@@ -8,6 +8,7 @@
 
 pub mod cohort;
 pub mod dictionary;
+pub mod energy;
 pub mod folder;
 pub mod schema;
 pub mod states;

@@ -99,10 +99,11 @@ pub const NETWORK_NULLS: TableDef = TableDef {
         c("null_number", "-", "the null, counted from 1 (null i uses random stream i of the seed)"),
         c("null_model", "-", "the rewiring that made it"),
         c("{outcome}", "as the outcome", "each outcome tested against network nulls, recomputed on this network"),
-        c("swaps_attempted", "1", "edge swaps attempted"),
-        c("swaps_accepted", "1", "edge swaps accepted"),
+        c("swaps_attempted", "1", "edge swaps attempted (swap models; NaN for weight-permutation and length-bin-shuffle)"),
+        c("swaps_accepted", "1", "edge swaps accepted (swap models; NaN otherwise)"),
+        c("edges_changed", "1", "share of the observed edges that this null moved or gave another weight"),
         c("strength_error", "1", "relative error of node strengths, ||s' - s|| / ||s||"),
-        c("length_ks_distance", "1", "Kolmogorov-Smirnov distance between original and null edge lengths (geometry-aware models; NaN otherwise)"),
+        c("length_ks_distance", "1", "Kolmogorov-Smirnov distance between original and null edge lengths (geometry-swap; NaN otherwise)"),
     ],
 };
 
@@ -290,8 +291,74 @@ pub const STATE_DISTANCE: TableDef = TableDef {
     ],
 };
 
+/// `energy.csv` of `hierax energy`.
+pub const ENERGY_PAIRS: TableDef = TableDef {
+    stem: "energy",
+    h5_path: None,
+    row: "one ordered pair of states (hierax energy)",
+    columns: &[
+        c("initial_state", "-", "state the transition starts from, counted from 1"),
+        c("target_state", "-", "state the transition reaches"),
+        c("energy", "energy", "minimum control energy E[initial,target]"),
+        c("asymmetry", "energy", "E[initial,target] - E[target,initial]"),
+        c(
+            "{penalised_energy}",
+            "energy",
+            "state-penalised control energy (Gu et al. 2017), with --state-penalty",
+        ),
+    ],
+};
+
+/// `energy_matrix.csv` and `asymmetry_matrix.csv` of `hierax energy`.
+pub const STATE_MATRIX: TableDef = TableDef {
+    stem: "energy_matrix",
+    h5_path: None,
+    row: "one initial state (hierax energy); asymmetry_matrix.csv has the same layout",
+    columns: &[
+        c("state", "-", "initial state, counted from 1"),
+        c(
+            "state_{j}",
+            "energy",
+            "value for target state j: E[i,j] (energy_matrix.csv) or E[i,j] - E[j,i] (asymmetry_matrix.csv)",
+        ),
+    ],
+};
+
+/// `node_metrics.csv` of `hierax energy`.
+pub const NODE_METRICS: TableDef = TableDef {
+    stem: "node_metrics",
+    h5_path: None,
+    row: "one region (hierax energy)",
+    columns: &[
+        REGION_NUMBER,
+        REGION,
+        c("driver_weight", "1", "input weight of the region in B (0: not driven)"),
+        c(
+            "average_controllability",
+            "1",
+            "trace of the node's controllability Gramian, discrete-time normalisation (Gu et al. 2015)",
+        ),
+        c(
+            "modal_controllability",
+            "1",
+            "sum_j (1 - lambda_j^2) v_ij^2 (Pasqualetti et al. 2014); NaN for directed networks",
+        ),
+    ],
+};
+
+/// `qc.csv` of `hierax energy`.
+pub const ENERGY_QC: TableDef = TableDef {
+    stem: "qc",
+    h5_path: None,
+    row: "one numerical-quality measure (hierax energy)",
+    columns: &[
+        c("measure", "-", "gramian_condition (2-norm), gramian_condition_limit (refused above), terminal_error_max, terminal_error_relative (refused above 1e-3), state_norm_max, spectral_radius"),
+        c("value", "1", "its value"),
+    ],
+};
+
 /// Every table, for the data dictionary.
-pub const ALL_TABLES: [&TableDef; 15] = [
+pub const ALL_TABLES: [&TableDef; 19] = [
     &REGIONS,
     &STATES,
     &PAIRS,
@@ -303,6 +370,10 @@ pub const ALL_TABLES: [&TableDef; 15] = [
     &STATE_BINS,
     &STATE_VECTORS,
     &STATE_DISTANCE,
+    &ENERGY_PAIRS,
+    &STATE_MATRIX,
+    &NODE_METRICS,
+    &ENERGY_QC,
     &COHORT,
     &RUN_LOG,
     &GROUP_TESTS,

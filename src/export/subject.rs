@@ -4,14 +4,13 @@
 use super::folder::{Marker, StagedFolder};
 use super::schema::{self, TableBuilder};
 use super::{number, CsvSink, H5Sink, Sink, Tee};
-use crate::hierarchy::SurrogateMethod;
 use crate::io::hdf5::{self as h5, AttrValue, DataValue};
 use crate::io::provenance::Provenance;
 use crate::io::table::{Column, Table};
 use crate::io::IoError;
 use crate::link::Direction;
 use crate::subject::result::NullRun;
-use crate::subject::{NullFamily, SubjectRecord, SubjectResult};
+use crate::subject::{SubjectRecord, SubjectResult};
 use serde_json::{json, Value};
 use std::path::{Path, PathBuf};
 
@@ -111,10 +110,19 @@ pub fn pairs_table(pairs: &crate::link::PairTable) -> Table {
 /// `sub-XX_timescales.csv`: the timescale table with the region numbers in front.
 pub fn timescales_table(r: &SubjectResult) -> Table {
     // The overall status covers the linked estimator only; the others keep their own status columns.
-    let t = r
-        .timescales
-        .result
-        .to_table_for(&[crate::timescale::ColumnSource::Estimator(r.timescales.estimator)]);
+    timescale_table(
+        &r.timescales.result,
+        &[crate::timescale::ColumnSource::Estimator(r.timescales.estimator)],
+    )
+}
+
+/// The timescale table of `result` (also `hierax timescales`' `timescales.csv`), its
+/// overall status covering the estimators `in_use`.
+pub fn timescale_table(
+    result: &crate::timescale::TimescaleResult,
+    in_use: &[crate::timescale::ColumnSource],
+) -> Table {
+    let t = result.to_table_for(in_use);
     let mut b =
         TableBuilder::new(&schema::TIMESCALES).col("region_number", ints((0..t.n_rows()).map(number)));
     for name in t.names() {
@@ -142,8 +150,9 @@ pub fn network_nulls_table(run: &NullRun) -> Table {
         .col("null_number", ints(rows.iter().map(|r| number(r.index))))
         .col("null_model", Column::Str(vec![run.method.clone(); rows.len()]));
     outcome_columns(b, run)
-        .col("swaps_attempted", info(|i| i.attempted as f64))
-        .col("swaps_accepted", info(|i| i.accepted as f64))
+        .col("swaps_attempted", info(|i| i.swaps_attempted.map_or(f64::NAN, |v| v as f64)))
+        .col("swaps_accepted", info(|i| i.swaps_accepted.map_or(f64::NAN, |v| v as f64)))
+        .col("edges_changed", info(|i| i.edges_changed))
         .col("strength_error", info(|i| i.strength_error))
         .col("length_ks_distance", info(|i| i.length_ks_distance.unwrap_or(f64::NAN)))
         .finish()
@@ -156,20 +165,6 @@ pub fn map_nulls_table(run: &NullRun) -> Table {
         .col("null_number", ints(rows.iter().map(|r| number(r.index))))
         .col("surrogate_method", Column::Str(vec![run.method.clone(); rows.len()]));
     outcome_columns(b, run).finish()
-}
-
-/// The null hypothesis a test of `family` with `method` examines.
-pub fn hypothesis(family: NullFamily, method: &str) -> String {
-    match family {
-        NullFamily::Network => format!(
-            "the outcome is no more extreme than on networks rewired by {method}, with the same states and \
-             timescales"
-        ),
-        NullFamily::Map => {
-            let m = SurrogateMethod::ALL.iter().find(|m| m.label() == method);
-            m.map_or_else(|| format!("surrogate maps by {method}"), |m| m.hypothesis().to_string())
-        }
-    }
 }
 
 /// `sub-XX_tests.csv`.
@@ -186,7 +181,7 @@ pub fn tests_table(r: &SubjectResult) -> Table {
         .col("null_sd", f(|x| x.null_sd))
         .col("p_value", f(|x| x.p_value))
         .col("p_fdr", f(|x| x.p_fdr))
-        .col("hypothesis", Column::Str(t.iter().map(|x| hypothesis(x.family, &x.method)).collect()))
+        .col("hypothesis", Column::Str(t.iter().map(|x| x.hypothesis.clone()).collect()))
         .finish()
 }
 
@@ -245,7 +240,7 @@ pub fn summary_json(r: &SubjectResult, prov: &Provenance, record: &SubjectRecord
             "outcome": t.outcome.name(),
             "null_family": t.family.label(),
             "null_model": t.method,
-            "hypothesis": hypothesis(t.family, &t.method),
+            "hypothesis": t.hypothesis,
             "observed": t.observed,
             "n_null": t.n_null,
             "null_mean": t.null_mean,
@@ -253,11 +248,38 @@ pub fn summary_json(r: &SubjectResult, prov: &Provenance, record: &SubjectRecord
             "p_value": t.p_value,
             "p_fdr": t.p_fdr,
         })).collect::<Vec<_>>(),
+        "null_models": null_models_json(r),
         "notes": r.notes,
         "covariates": r.covariates,
         "record": record,
         "provenance": prov,
     })
+}
+
+/// What each null family did: the model, its hypothesis and, for network
+/// nulls, how far it moved the network.
+fn null_models_json(r: &SubjectResult) -> Vec<Value> {
+    let runs = r.network_nulls.iter().chain(r.map_nulls.iter());
+    runs.map(|run| {
+        json!({
+            "null_family": run.family.label(),
+            "null_model": run.method,
+            "hypothesis": run.hypothesis,
+            "requested": run.requested,
+            "usable": run.rows.len(),
+            "effect": run.effect.as_ref().map(|e| json!({
+                "density": e.density,
+                "swaps_accepted_share": e.accepted_share,
+                "edges_changed_mean": e.edges_changed,
+                "strength_error_mean": e.strength_error,
+                "refusal_rule": format!(
+                    "refused when fewer than {:.0} % of edges change per null, or (swap models) fewer than \
+                     {:.0} % of swaps are accepted", 100.0 * crate::stats::nulls::MIN_EDGES_CHANGED,
+                    100.0 * crate::stats::nulls::MIN_ACCEPTED_SHARE),
+            })),
+        })
+    })
+    .collect()
 }
 
 fn finite(v: f64) -> Value {

@@ -38,4 +38,20 @@ pub enum StatsError {
         /// The value given.
         value: f64,
     },
+    /// A null model cannot randomise the network it was given.
+    #[error("{model} nulls cannot randomise this network: {reason}")]
+    CannotRandomise {
+        /// The null model.
+        model: &'static str,
+        /// Why, and what to use instead.
+        reason: String,
+    },
+    /// A method needs an input it was not given.
+    #[error("{model} needs {needs}")]
+    MissingInput {
+        /// The method.
+        model: &'static str,
+        /// What it needs.
+        needs: &'static str,
+    },
 }

@@ -8,31 +8,8 @@ use crate::control::{Drivers, SystemParams, ValidSystemParams};
 use crate::hierarchy::SurrogateMethod;
 use crate::io::validate::Orientation;
 use crate::param::{require, ParamError};
+pub use crate::stats::nulls::NullModel;
 use serde::Serialize;
-
-/// Which network null model to use (to move into `stats::nulls`).
-#[derive(Clone, Copy, Debug, PartialEq, Eq, Serialize, serde::Deserialize, Default)]
-#[serde(rename_all = "kebab-case")]
-pub enum NullModel {
-    /// Maslov–Sneppen degree-preserving swaps (default).
-    #[default]
-    Degree,
-    /// Degree-preserving swaps with strength-matched weights.
-    Strength,
-    /// Degree- and edge-length-preserving swaps (needs distances).
-    Geometry,
-}
-
-impl NullModel {
-    /// The name used in outputs.
-    pub fn label(self) -> &'static str {
-        match self {
-            NullModel::Degree => "degree-swap",
-            NullModel::Strength => "strength-swap",
-            NullModel::Geometry => "geometry-swap",
-        }
-    }
-}
 
 /// Every parameter of the per-subject job. [`SubjectConfig::new`] lists the
 /// defaults. Fields are public so a caller can build one; only

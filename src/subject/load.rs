@@ -2,7 +2,7 @@
 //! that touches files. Region counts and names are reconciled here, so every
 //! later stage works on arrays that agree.
 
-use super::config::{NullModel, ValidSubjectConfig};
+use super::config::ValidSubjectConfig;
 use super::SubjectError;
 use crate::hierarchy::{SphereLayout, SurrogateMethod};
 use crate::io::provenance::InputRecord;
@@ -107,7 +107,7 @@ impl LoadedSubject {
     pub fn load(inputs: &SubjectInputs, cfg: &ValidSubjectConfig) -> Result<Self, SubjectError> {
         check_unit_name(&inputs.subject)?;
         let p = cfg.params();
-        let needs_distances = (p.network_nulls > 0 && p.null_model == NullModel::Geometry)
+        let needs_distances = (p.network_nulls > 0 && p.null_model.needs_distances())
             || (p.map_nulls > 0 && p.map_null_method != SurrogateMethod::Spin);
         if needs_distances && inputs.distances.is_none() {
             let needed_by = if p.map_nulls > 0 && p.map_null_method != SurrogateMethod::Spin {

@@ -8,7 +8,7 @@ use crate::hierarchy::States;
 use crate::io::provenance::InputRecord;
 use crate::link::{PairTable, SubjectSummary};
 use crate::stats::correlation::Correlation;
-use crate::stats::nulls::RewireInfo;
+use crate::stats::nulls::{NullEffect, RewireInfo};
 use crate::timescale::{Estimator, TimescaleResult};
 use ndarray::Array2;
 use serde::Serialize;
@@ -76,12 +76,16 @@ pub struct NullRun {
     pub family: NullFamily,
     /// The null model (`degree-swap`, `spin`, …).
     pub method: String,
+    /// The null hypothesis its tests examine.
+    pub hypothesis: String,
     /// Nulls asked for.
     pub requested: usize,
     /// The outcomes recomputed on every null.
     pub outcomes: Vec<Outcome>,
     /// The usable nulls (an unusable rewired network is skipped and counted).
     pub rows: Vec<NullRow>,
+    /// How far the network nulls moved the network (network family only).
+    pub effect: Option<NullEffect>,
 }
 
 /// One null-model test.
@@ -93,6 +97,8 @@ pub struct NullTest {
     pub family: NullFamily,
     /// The null model.
     pub method: String,
+    /// The null hypothesis the test examines.
+    pub hypothesis: String,
     /// The observed value.
     pub observed: f64,
     /// Finite null values used.

@@ -1,7 +1,7 @@
 //! The stages of the per-subject job, one per home module, each callable and
 //! testable alone. None reads or writes a file.
 
-use super::config::{NullModel, ValidSubjectConfig};
+use super::config::ValidSubjectConfig;
 use super::outcomes::{NullFamily, Outcome, OutcomeSource};
 use super::result::{ControlStage, LinkStage, NullRow, NullRun, NullTest, TimescaleStage};
 use super::{LoadedSubject, SubjectError};
@@ -10,7 +10,7 @@ use crate::hierarchy::{build_states, surrogate_maps, Order, SpatialInputs, State
 use crate::link::{self, SubjectSummary};
 use crate::stats::correlation::{spearman, Correlation};
 use crate::stats::inference::{benjamini_hochberg, permutation_p_value, Alternative};
-use crate::stats::nulls::{degree_preserving, geometry_preserving, strength_preserving, RewireInfo};
+use crate::stats::nulls::{self, NullParams, RewireInfo};
 use crate::stats::StatsError;
 use crate::timescale::{
     censor_from_displacement, estimate_timescales, ColumnSource, Estimator, NuisanceSpec, TimescaleParams,
@@ -150,29 +150,29 @@ fn outcome_values(outcomes: &[Outcome], summary: &SubjectSummary, tau_rho: Optio
     outcomes.iter().map(|o| o.value(&src)).collect()
 }
 
-fn rewire(
-    w: &Array2<f64>,
-    dist: Option<&Array2<f64>>,
-    cfg: &ValidSubjectConfig,
-    rng: &mut ChaCha20Rng,
-) -> Result<(Array2<f64>, RewireInfo), StatsError> {
+/// The null-model settings of the job.
+fn null_params(cfg: &ValidSubjectConfig) -> NullParams {
     let p = cfg.params();
-    match (p.null_model, dist) {
-        (NullModel::Degree, _) => degree_preserving(w, p.swaps_per_edge, rng),
-        (NullModel::Strength, _) => strength_preserving(w, p.swaps_per_edge, rng),
-        (NullModel::Geometry, Some(d)) => geometry_preserving(w, d, p.length_bins, p.swaps_per_edge, rng),
-        (NullModel::Geometry, None) => {
-            Err(StatsError::OutOfRange { name: "distances", expected: "a distance matrix", value: f64::NAN })
-        }
-    }
+    NullParams { swaps_per_edge: p.swaps_per_edge, length_bins: p.length_bins }
 }
 
-/// Stage 5 (`stats::nulls`): recompute the tested outcomes on rewired
-/// networks with the same states. Null `i` draws from ChaCha20 stream
-/// `1 + i` of the seed, so results do not depend on the thread count.
+/// Null `i`'s random stream: ChaCha20 stream `1 + i` of the seed, so results
+/// do not depend on the thread count.
+fn null_rng(seed: u64, i: usize) -> ChaCha20Rng {
+    let mut rng = ChaCha20Rng::seed_from_u64(seed);
+    rng.set_stream(1 + i as u64);
+    rng
+}
+
+/// Stage 5 (`stats::nulls`): recompute the tested outcomes on randomised
+/// networks with the same states. A preflight rewiring (null 1) is assessed
+/// first ([`nulls::assess`]), so a model that cannot move this network is
+/// refused, with the reason, before the null budget is spent; the full run
+/// is assessed again and its effect (accepted swaps, edges changed) kept.
 ///
 /// # Errors
-/// [`SubjectError::Nulls`] when a rewiring fails on the observed network.
+/// [`SubjectError::Nulls`] when the model cannot randomise the network or a
+/// rewiring fails.
 pub fn network_nulls(
     s: &LoadedSubject,
     states: &States,
@@ -183,42 +183,51 @@ pub fn network_nulls(
     if p.network_nulls == 0 {
         return Ok(None);
     }
+    let err = |source| SubjectError::Nulls { family: "network", source };
+    let model = p.null_model;
+    let np = null_params(cfg);
+    let net = nulls::Network::new(s.weights.view(), s.distances.as_ref().map(|d| d.view()), p.directed)
+        .map_err(err)?;
+    let (_, first) = nulls::rewire(model, &net, &np, &mut null_rng(p.seed, 0)).map_err(err)?;
+    nulls::assess(model, &net, std::slice::from_ref(&first)).map_err(err)?;
     let outcomes = family_outcomes(cfg, NullFamily::Network);
     let vsys = cfg
         .system_for(s.n_regions())
         .map_err(|source| SubjectError::Control { input: s.specs.connectome.to_string(), source })?;
-    let err = |source| SubjectError::Nulls { family: "network", source };
-    let rows: Vec<Result<Option<NullRow>, StatsError>> = (0..p.network_nulls)
+    let rows: Vec<Result<(RewireInfo, Option<NullRow>), StatsError>> = (0..p.network_nulls)
         .into_par_iter()
         .map(|i| {
-            let mut rng = ChaCha20Rng::seed_from_u64(p.seed);
-            rng.set_stream(1 + i as u64);
-            let (w, info) = rewire(&s.weights, s.distances.as_ref(), cfg, &mut rng)?;
-            // A rewired network the model cannot use (e.g. a node left without edges) is skipped
-            // and counted.
+            let (w, info) = nulls::rewire(model, &net, &np, &mut null_rng(p.seed, i))?;
+            // A randomised network the model cannot use (e.g. a region left without edges) is
+            // skipped and counted.
             let summary = System::new(w.view(), p.directed, &vsys, Par::Seq).ok().and_then(|sys| {
                 let (e, _) = energy_matrix(&sys, states.matrix.view()).ok()?;
                 link::summarise(&link::pair_table(&e, Some(&link.state_timescale_s)).ok()?).ok()
             });
-            Ok(summary.map(|sm| NullRow {
+            let row = summary.map(|sm| NullRow {
                 index: i,
                 values: outcome_values(&outcomes, &sm, None),
-                rewire: Some(info),
-            }))
+                rewire: Some(info.clone()),
+            });
+            Ok((info, row))
         })
         .collect();
+    let mut infos = Vec::with_capacity(rows.len());
     let mut kept = Vec::new();
     for r in rows {
-        if let Some(row) = r.map_err(err)? {
-            kept.push(row);
-        }
+        let (info, row) = r.map_err(err)?;
+        infos.push(info);
+        kept.extend(row);
     }
+    let effect = nulls::assess(model, &net, &infos).map_err(err)?;
     Ok(Some(NullRun {
         family: NullFamily::Network,
-        method: p.null_model.label().to_string(),
+        method: model.label().to_string(),
+        hypothesis: model.hypothesis().to_string(),
         requested: p.network_nulls,
         outcomes,
         rows: kept,
+        effect: Some(effect),
     }))
 }
 
@@ -261,9 +270,11 @@ pub fn map_nulls(
     Ok(Some(NullRun {
         family: NullFamily::Map,
         method: p.map_null_method.label().to_string(),
+        hypothesis: p.map_null_method.hypothesis().to_string(),
         requested: p.map_nulls,
         outcomes,
         rows: rows.into_iter().flatten().collect(),
+        effect: None,
     }))
 }
 
@@ -303,6 +314,7 @@ pub fn null_tests(observed: &[(Outcome, f64)], runs: &[&NullRun]) -> Result<Vec<
                 outcome: *outcome,
                 family: run.family,
                 method: run.method.clone(),
+                hypothesis: run.hypothesis.clone(),
                 observed: obs,
                 n_null: null.len(),
                 null_mean: mean,

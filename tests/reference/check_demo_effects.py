@@ -1,7 +1,7 @@
 """Check the effects planted in the INVENTED demo cohort (demo-data/).
 
 Independent of hierax: reads the committed files with numpy and recomputes
-everything with numpy 2.1.3 / scipy 1.14.1 (/opt/hierax-ref/bin/python).
+everything with numpy 2.1.3 / scipy 1.14.1 (.venv-ref/bin/python).
 
 Control energy (Karrer et al. 2020, J Neural Eng; Gu et al. 2015, Nat Commun):
   A~ = A / (1 + lambda_max(A)) - I, continuous time, B = I, T = 1,
@@ -22,7 +22,7 @@ regression (OLS on global signal + six motion parameters + intercept) and
 censoring (frames with FD > 0.5 mm and the one after, Power et al. 2012).
 
 Run from the repository root:
-  /opt/hierax-ref/bin/python tests/reference/check_demo_effects.py
+  .venv-ref/bin/python tests/reference/check_demo_effects.py
 """
 
 import csv

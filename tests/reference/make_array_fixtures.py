@@ -2,7 +2,7 @@
 
 Run from the repository root with the pinned reference environment:
 
-    /opt/hierax-ref/bin/python tests/reference/make_array_fixtures.py
+    .venv-ref/bin/python tests/reference/make_array_fixtures.py
 
 Writes into tests/data/arrays/:
   * .npy files written by numpy.save (C and Fortran order, big-endian float64),

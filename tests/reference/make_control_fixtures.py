@@ -1,7 +1,7 @@
 """Reference fixtures for hierax's `control` module.
 
 Run with the pinned reference environment:
-    /opt/hierax-ref/bin/python tests/reference/make_control_fixtures.py
+    .venv-ref/bin/python tests/reference/make_control_fixtures.py
 (numpy 2.1.3, scipy 1.14.1). Writes tests/data/control/*.npz.
 
 Every quantity is computed independently of hierax from its definition:

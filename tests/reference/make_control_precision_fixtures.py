@@ -1,7 +1,7 @@
 """High-precision references for the accuracy of hierax's Gramian routes.
 
 Run with the pinned reference environment:
-    /opt/hierax-ref/bin/python tests/reference/make_control_precision_fixtures.py
+    .venv-ref/bin/python tests/reference/make_control_precision_fixtures.py
 (mpmath 1.4.1, numpy 2.1.3). Writes tests/data/control/precision_*.npz.
 
 Every reference is computed in mpmath at mp.dps = 60 from the float64 inputs

@@ -4,7 +4,7 @@
 Run with the pinned reference environment (h5py 3.12.1 on HDF5 1.14.4,
 numpy 2.1.3):
 
-    /opt/hierax-ref/bin/python tests/reference/make_h5_fixtures.py
+    .venv-ref/bin/python tests/reference/make_h5_fixtures.py
 
 Two jobs, both writing into tests/data/h5/:
 

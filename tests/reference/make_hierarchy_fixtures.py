@@ -3,7 +3,7 @@
 Run with the pinned reference environment (numpy 2.1.3, scipy 1.14.1; see
 tests/reference/requirements.txt):
 
-    /opt/hierax-ref/bin/python tests/reference/make_hierarchy_fixtures.py
+    .venv-ref/bin/python tests/reference/make_hierarchy_fixtures.py
 
 Writes tests/data/hierarchy/binning.json and tests/data/hierarchy/diffusion.json.
 All data are invented (seeded random numbers).

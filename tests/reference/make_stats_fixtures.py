@@ -1,6 +1,6 @@
 """Reference values for hierax::stats, from scipy 1.14.1 and statsmodels 0.14.4.
 
-Run:  /opt/hierax-ref/bin/python tests/reference/make_stats_fixtures.py
+Run:  .venv-ref/bin/python tests/reference/make_stats_fixtures.py
 Writes tests/data/stats/expected.json (inputs and expected outputs, float64
 as repr strings so the Rust side parses them exactly).
 """

@@ -1,7 +1,7 @@
 """Reference values for the `timescale` module (hierax issue 3).
 
 Run with the pinned reference environment (tests/reference/requirements.txt):
-    /opt/hierax-ref/bin/python tests/reference/make_timescale_fixtures.py
+    .venv-ref/bin/python tests/reference/make_timescale_fixtures.py
 Writes tests/data/timescale/fixtures.json. Versions used are recorded in the
 file itself. All series are invented (seeded simulations), not real data.
 
