@@ -10,6 +10,7 @@ mod io_arrays;
 mod io_h5;
 mod link;
 mod nulls;
+mod numbering;
 mod stats;
 mod subject;
 mod timescale;
