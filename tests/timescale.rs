@@ -347,8 +347,8 @@ fn cli_bad_input_is_one_line_exit_2_and_no_output() {
     let dir = tempfile::tempdir().unwrap();
     let series = ar_csv(dir.path(), 100, 3);
     // TR missing or non-positive.
-    assert_fails(&["--tr", "0"], Some(&series), "`tr` = 0");
-    assert_fails(&["--tr", "-2"], Some(&series), "`tr` = -2");
+    assert_fails(&["--tr", "0"], Some(&series), "--tr 0: expected");
+    assert_fails(&["--tr", "-2"], Some(&series), "--tr -2: expected");
     // Series shorter than the lag bound.
     assert_fails(&["--tr", "2", "--max-lag", "100"], Some(&series), "more frames than the lag bound");
     // Mask length mismatch.

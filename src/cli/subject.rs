@@ -298,12 +298,24 @@ fn subject_label(given: Option<&str>, inputs: &[&InputSpec]) -> anyhow::Result<S
 /// A library error with parameter names spelled as this command's flags.
 pub fn with_flag_names(e: SubjectError) -> anyhow::Error {
     match e {
-        SubjectError::Param(p) => anyhow::anyhow!("{} {}: expected {}", flag_of(p.name), p.value, p.expected),
+        SubjectError::Param(p) => param_with_flag(&p),
+        SubjectError::Timescales { input, source: hierax::timescale::TimescaleError::Param(p) } => {
+            anyhow::anyhow!("{input}: timescales: {}", param_with_flag(&p))
+        }
         SubjectError::MissingInput { input, needed_by } => {
             anyhow::anyhow!("{needed_by} need {}; none was given", flag_of(input))
         }
         other => other.into(),
     }
+}
+
+/// A library parameter error in the command line's words: `--flag VALUE:
+/// expected …` (parameters no flag sets keep their library message).
+pub fn param_with_flag(p: &hierax::param::ParamError) -> anyhow::Error {
+    if p.name == "region_names" {
+        return anyhow::anyhow!("{p}");
+    }
+    anyhow::anyhow!("{} {}: expected {}", flag_of(p.name), p.value, p.expected)
 }
 
 /// The flag that sets a library parameter.
@@ -313,6 +325,9 @@ pub fn flag_of(name: &str) -> String {
         "fd_threshold_mm" => "fd-threshold",
         "timescale_column" => "timescale",
         "detrend_order" => "detrend",
+        "threads" => "jobs",
+        "estimators" => "estimator",
+        "knee_band_hz" => "knee-band",
         other => return format!("--{}", other.replace('_', "-")),
     };
     format!("--{flag}")

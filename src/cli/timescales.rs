@@ -1,6 +1,6 @@
 //! `hierax timescales`: intrinsic timescales of every region of one series.
 
-use anyhow::{bail, Context};
+use anyhow::bail;
 use clap::{Args, ValueEnum};
 use hierax::io::provenance::{InputRecord, Provenance};
 use hierax::io::table::write_json;
@@ -8,7 +8,7 @@ use hierax::io::validate::{self, Orientation};
 use hierax::io::{read_array, InputSpec};
 use hierax::timescale::{
     censor_from_displacement, estimate_timescales, BiasCorrection, ColumnSource, Confound, Estimator,
-    FitLags, NuisanceSpec, RegionStatus, TimescaleParams,
+    FitLags, NuisanceSpec, RegionStatus, TimescaleError, TimescaleParams,
 };
 use std::path::PathBuf;
 use std::process::ExitCode;
@@ -216,8 +216,12 @@ pub fn run(args: TimescalesArgs) -> anyhow::Result<ExitCode> {
         inputs.push(InputRecord::of("censor_mask", &mspec)?);
         (Some(v), serde_json::json!({"source": "mask", "spec": mspec.to_string()}))
     } else if let (Some(thr), Some(fd)) = (args.fd_threshold, &fd) {
-        let v = censor_from_displacement(fd, thr, args.censor_after).with_context(|| {
-            format!("{}: column `{}`", args.confounds.as_deref().unwrap_or(""), args.fd_column)
+        let v = censor_from_displacement(fd, thr, args.censor_after).map_err(|e| {
+            let at = format!("{}: column `{}`", args.confounds.as_deref().unwrap_or(""), args.fd_column);
+            match e {
+                TimescaleError::Param(p) => super::subject::param_with_flag(&p).context(at),
+                other => anyhow::Error::new(other).context(at),
+            }
         })?;
         (
             Some(v),
@@ -266,9 +270,9 @@ pub fn run(args: TimescalesArgs) -> anyhow::Result<ExitCode> {
         BiasArg::Ar1 => BiasCorrection::Ar1,
     };
     params.threads = args.jobs;
-    let valid_params = params.check(n_frames).with_context(|| spec.to_string())?;
+    let valid_params = params.check(n_frames).map_err(|e| with_flags(e, &spec))?;
     let result = estimate_timescales(series.data.view(), &names, valid.as_deref(), &confounds, &valid_params)
-        .with_context(|| spec.to_string())?;
+        .map_err(|e| with_flags(e, &spec))?;
 
     let ok = result.regions.iter().filter(|r| r.status == RegionStatus::Ok).count();
     if ok == 0 {
@@ -277,12 +281,12 @@ pub fn run(args: TimescalesArgs) -> anyhow::Result<ExitCode> {
             "{spec}: no region could be estimated (first region: {first}; {} valid of {} frames, --min-frames {})",
             result.n_valid_frames,
             n_frames,
-            valid_params.min_frames
+            valid_params.min_frames()
         );
     }
     let mut in_use: Vec<ColumnSource> =
-        valid_params.estimators.iter().map(|e| ColumnSource::Estimator(*e)).collect();
-    if valid_params.bias_correction == BiasCorrection::Ar1 {
+        valid_params.estimators().iter().map(|e| ColumnSource::Estimator(*e)).collect();
+    if valid_params.bias_correction() == BiasCorrection::Ar1 {
         in_use.push(ColumnSource::Ar1);
     }
     let table = hierax::export::subject::timescale_table(&result, &in_use);
@@ -302,8 +306,8 @@ pub fn run(args: TimescalesArgs) -> anyhow::Result<ExitCode> {
         "n_valid_frames": result.n_valid_frames,
         "n_regions_flagged": result.n_flagged(),
         "welch_segment_frames": result.welch_segment_frames,
-        "tau_bounds_s": {"min": valid_params.tr_s / 10.0,
-                         "max": result.n_valid_frames as f64 * valid_params.tr_s,
+        "tau_bounds_s": {"min": valid_params.tr_s() / 10.0,
+                         "max": result.n_valid_frames as f64 * valid_params.tr_s(),
                          "rule": "a fitted timescale outside [TR/10, valid frames x TR] is implausible_fit"},
         "status_counts": status_counts,
         "notes": series.notes,
@@ -331,4 +335,12 @@ pub fn run(args: TimescalesArgs) -> anyhow::Result<ExitCode> {
     }
     println!("wrote {} and {}", csv.display(), json.display());
     Ok(ExitCode::SUCCESS)
+}
+
+/// A timescale error with library parameter names replaced by flags.
+fn with_flags(e: TimescaleError, spec: &InputSpec) -> anyhow::Error {
+    match e {
+        TimescaleError::Param(p) => super::subject::param_with_flag(&p).context(spec.to_string()),
+        other => anyhow::Error::new(other).context(spec.to_string()),
+    }
 }

@@ -79,9 +79,20 @@ impl Default for PenaltyParams {
 #[derive(Clone, Debug, Serialize)]
 pub struct ValidPenaltyParams {
     /// Diagonal of `S`.
-    pub s: Vec<f64>,
+    pub(crate) s: Vec<f64>,
     /// `ρ`.
-    pub rho: f64,
+    pub(crate) rho: f64,
+}
+
+impl ValidPenaltyParams {
+    /// Diagonal of `S`.
+    pub fn s(&self) -> &[f64] {
+        &self.s
+    }
+    /// `ρ`.
+    pub fn rho(&self) -> f64 {
+        self.rho
+    }
 }
 
 /// Quality figures of a state-penalised solve.

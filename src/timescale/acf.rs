@@ -7,6 +7,7 @@
 //! wrapped product at lag `k` needs `nfft - k < n`.
 
 use super::TimescaleError;
+use crate::param::ParamError;
 use realfft::num_complex::Complex;
 use realfft::{ComplexToReal, RealFftPlanner, RealToComplex};
 use std::sync::Arc;
@@ -73,11 +74,7 @@ impl AcfPlan {
             });
         }
         if max_lag == 0 {
-            return Err(TimescaleError::InvalidParameter {
-                name: "max-lag",
-                value: "0".into(),
-                expected: "a lag bound of at least 1".into(),
-            });
+            return Err(ParamError::new("max_lag", 0, "a lag bound of at least 1").into());
         }
         let nfft = fast_fft_len(n + max_lag);
         let mut planner = RealFftPlanner::<f64>::new();

@@ -11,6 +11,7 @@ use super::preprocess::{Confound, NuisanceModel};
 use super::welch::{welch_segment_default, WelchPlan};
 use super::TimescaleError;
 use crate::io::table::{Column, Table};
+use crate::param::ParamError;
 use ndarray::ArrayView2;
 use rand::{Rng, SeedableRng};
 use rand_chacha::ChaCha8Rng;
@@ -480,11 +481,12 @@ pub fn estimate_timescales(
         });
     }
     if names.len() != n_regions {
-        return Err(TimescaleError::InvalidParameter {
-            name: "region names",
-            value: names.len().to_string(),
-            expected: format!("one name per region ({n_regions})"),
-        });
+        return Err(ParamError::new(
+            "region_names",
+            names.len(),
+            format!("one name per region ({n_regions})"),
+        )
+        .into());
     }
     let all_valid = vec![true; n];
     let valid: &[bool] = match valid {
@@ -503,7 +505,7 @@ pub fn estimate_timescales(
         return Err(TimescaleError::SeriesTooShort {
             n_frames: n,
             n_valid,
-            need: format!("more valid frames than the lag bound --max-lag {}", params.max_lag),
+            need: format!("more valid frames than the lag bound max_lag = {}", params.max_lag),
         });
     }
     if n_regions > 0 {
@@ -518,10 +520,12 @@ pub fn estimate_timescales(
         .confounds
         .iter()
         .map(|name| {
-            confounds.iter().find(|c| &c.name == name).ok_or_else(|| TimescaleError::InvalidParameter {
-                name: "confound-columns",
-                value: name.clone(),
-                expected: "a column of the confounds table".into(),
+            confounds.iter().find(|c| &c.name == name).ok_or_else(|| {
+                TimescaleError::Param(ParamError::new(
+                    "confound_columns",
+                    name,
+                    "a column of the confounds table",
+                ))
             })
         })
         .collect::<Result<_, _>>()?;

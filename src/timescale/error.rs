@@ -6,16 +6,9 @@
 #[derive(Debug, Clone, PartialEq, thiserror::Error)]
 #[non_exhaustive]
 pub enum TimescaleError {
-    /// A parameter is outside its allowed range.
-    #[error("parameter `{name}` = {value}: expected {expected}")]
-    InvalidParameter {
-        /// The parameter, as the command line names it.
-        name: &'static str,
-        /// The value given.
-        value: String,
-        /// The allowed range or set.
-        expected: String,
-    },
+    /// A parameter is outside its allowed range (named as the library spells it).
+    #[error("{0}")]
+    Param(#[from] crate::param::ParamError),
     /// The series has fewer frames than the analysis needs.
     #[error("series has {n_frames} frames ({n_valid} valid), {need}")]
     SeriesTooShort {

@@ -4,6 +4,7 @@
 use super::estimators::FitLags;
 use super::preprocess::NuisanceSpec;
 use super::TimescaleError;
+use crate::param::ParamError;
 use serde::Serialize;
 
 /// A timescale estimator.
@@ -139,20 +140,18 @@ impl TimescaleParams {
     /// Check against a series of `n_frames` frames and resolve the defaults.
     ///
     /// # Errors
-    /// [`TimescaleError::InvalidParameter`] naming the parameter, or
+    /// [`TimescaleError::Param`] naming the parameter, or
     /// [`TimescaleError::SeriesTooShort`] when the series is not longer than
     /// the lag bound.
     pub fn check(&self, n_frames: usize) -> Result<ValidTimescaleParams, TimescaleError> {
-        let bad = |name: &'static str, value: String, expected: &str| TimescaleError::InvalidParameter {
-            name,
-            value,
-            expected: expected.to_string(),
+        let bad = |name: &'static str, value: String, expected: &str| {
+            TimescaleError::Param(ParamError::new(name, value, expected))
         };
         if !(self.tr_s > 0.0 && self.tr_s.is_finite()) {
-            return Err(bad("tr", self.tr_s.to_string(), "a positive, finite repetition time in seconds"));
+            return Err(bad("tr_s", self.tr_s.to_string(), "a positive, finite repetition time in seconds"));
         }
         if self.estimators.is_empty() {
-            return Err(bad("estimator", "(none)".into(), "at least one estimator"));
+            return Err(bad("estimators", "(none)".into(), "at least one estimator"));
         }
         let mut estimators = self.estimators.clone();
         estimators.sort();
@@ -160,7 +159,7 @@ impl TimescaleParams {
         let max_lag = self.max_lag.unwrap_or(n_frames / 4);
         if max_lag == 0 {
             return Err(if self.max_lag.is_some() {
-                bad("max-lag", "0".into(), "at least 1")
+                bad("max_lag", "0".into(), "at least 1")
             } else {
                 TimescaleError::SeriesTooShort {
                     n_frames,
@@ -173,16 +172,16 @@ impl TimescaleParams {
             return Err(TimescaleError::SeriesTooShort {
                 n_frames,
                 n_valid: n_frames,
-                need: format!("more frames than the lag bound --max-lag {max_lag}"),
+                need: format!("more frames than the lag bound max_lag = {max_lag}"),
             });
         }
         let min_frames = self.min_frames.unwrap_or(2 * max_lag).max(max_lag + 1);
         if let FitLags::Range { first, last } = self.fit_lags {
             if !(first <= last && last <= max_lag && last >= first + 3) {
                 return Err(bad(
-                    "fit-lags",
+                    "fit_lags",
                     format!("{first}:{last}"),
-                    &format!("FIRST:LAST with at least four lags and LAST <= max-lag {max_lag}"),
+                    &format!("FIRST:LAST with at least four lags and LAST <= max_lag = {max_lag}"),
                 ));
             }
         }
@@ -192,7 +191,7 @@ impl TimescaleParams {
             let given = welch_segment.unwrap_or(shortest);
             if !(shortest..=n_frames).contains(&given) {
                 return Err(bad(
-                    "welch-segment",
+                    "welch_segment",
                     welch_segment
                         .map_or_else(|| format!("(default, series of {n_frames} frames)"), |w| w.to_string()),
                     &format!("between {shortest} and the {n_frames} frames of the series"),
@@ -203,20 +202,20 @@ impl TimescaleParams {
         let knee_band_hz = self.knee_band_hz.unwrap_or((0.0, nyquist));
         if !(knee_band_hz.0 >= 0.0 && knee_band_hz.0 < knee_band_hz.1) {
             return Err(bad(
-                "knee-band",
+                "knee_band_hz",
                 format!("{}:{}", knee_band_hz.0, knee_band_hz.1),
                 "LOW:HIGH in Hz with 0 <= LOW < HIGH",
             ));
         }
         let block_frames = self.block_frames.unwrap_or(n_frames.div_ceil(10).max(1));
         if self.bootstrap > 0 && !(1..=n_frames).contains(&block_frames) {
-            return Err(bad("block-frames", block_frames.to_string(), "between 1 and the number of frames"));
+            return Err(bad("block_frames", block_frames.to_string(), "between 1 and the number of frames"));
         }
         if self.bootstrap == 1 {
             return Err(bad("bootstrap", "1".into(), "0 (off) or at least 2 replicates"));
         }
         if self.threads == Some(0) {
-            return Err(bad("jobs", "0".into(), "at least 1 thread"));
+            return Err(bad("threads", "0".into(), "at least 1 thread"));
         }
         Ok(ValidTimescaleParams {
             tr_s: self.tr_s,
@@ -241,37 +240,90 @@ impl TimescaleParams {
 #[derive(Clone, Debug, Serialize)]
 pub struct ValidTimescaleParams {
     /// Repetition time, seconds.
-    pub tr_s: f64,
+    pub(crate) tr_s: f64,
     /// Estimators, sorted, unique.
-    pub estimators: Vec<Estimator>,
+    pub(crate) estimators: Vec<Estimator>,
     /// Frames in the series the parameters were checked against.
-    pub n_frames: usize,
+    pub(crate) n_frames: usize,
     /// Largest lag.
-    pub max_lag: usize,
+    pub(crate) max_lag: usize,
     /// Nuisance regression.
-    pub nuisance: NuisanceSpec,
+    pub(crate) nuisance: NuisanceSpec,
     /// Minimum valid frames per region.
-    pub min_frames: usize,
+    pub(crate) min_frames: usize,
     /// Lags of the exponential fit.
-    pub fit_lags: FitLags,
+    pub(crate) fit_lags: FitLags,
     /// Welch segment length as given (`None` = the shared rule, resolved per
     /// series; the length used is [`TimescaleResult::welch_segment_frames`](super::TimescaleResult::welch_segment_frames)).
-    pub welch_segment: Option<usize>,
+    pub(crate) welch_segment: Option<usize>,
     /// Knee-fit band, Hz.
-    pub knee_band_hz: (f64, f64),
+    pub(crate) knee_band_hz: (f64, f64),
     /// Bootstrap replicates.
-    pub bootstrap: usize,
+    pub(crate) bootstrap: usize,
     /// Bootstrap block length, frames.
-    pub block_frames: usize,
+    pub(crate) block_frames: usize,
     /// Bootstrap seed.
-    pub seed: u64,
+    pub(crate) seed: u64,
     /// Bias correction.
-    pub bias_correction: BiasCorrection,
+    pub(crate) bias_correction: BiasCorrection,
     /// Worker threads.
-    pub threads: Option<usize>,
+    pub(crate) threads: Option<usize>,
 }
 
 impl ValidTimescaleParams {
+    /// Repetition time, seconds.
+    pub fn tr_s(&self) -> f64 {
+        self.tr_s
+    }
+    /// Estimators, sorted, unique.
+    pub fn estimators(&self) -> &[Estimator] {
+        &self.estimators
+    }
+    /// Frames in the series the parameters were checked against.
+    pub fn n_frames(&self) -> usize {
+        self.n_frames
+    }
+    /// Largest lag of the autocorrelation.
+    pub fn max_lag(&self) -> usize {
+        self.max_lag
+    }
+    /// Nuisance regression.
+    pub fn nuisance(&self) -> &NuisanceSpec {
+        &self.nuisance
+    }
+    /// Minimum valid frames per region.
+    pub fn min_frames(&self) -> usize {
+        self.min_frames
+    }
+    /// Lags of the exponential fit.
+    pub fn fit_lags(&self) -> &FitLags {
+        &self.fit_lags
+    }
+    /// Welch segment length as given (`None`: the shared rule).
+    pub fn welch_segment(&self) -> Option<usize> {
+        self.welch_segment
+    }
+    /// Knee-fit band, Hz.
+    pub fn knee_band_hz(&self) -> (f64, f64) {
+        self.knee_band_hz
+    }
+    /// Bootstrap replicates and block length (frames).
+    pub fn bootstrap(&self) -> (usize, usize) {
+        (self.bootstrap, self.block_frames)
+    }
+    /// Bootstrap seed.
+    pub fn seed(&self) -> u64 {
+        self.seed
+    }
+    /// Bias correction.
+    pub fn bias_correction(&self) -> BiasCorrection {
+        self.bias_correction
+    }
+    /// Worker threads (`None`: the caller's pool).
+    pub fn threads(&self) -> Option<usize> {
+        self.threads
+    }
+
     /// Whether `e` is selected.
     pub fn has(&self, e: Estimator) -> bool {
         self.estimators.contains(&e)
@@ -288,17 +340,21 @@ mod tests {
         assert_eq!((v.max_lag, v.min_frames, v.welch_segment, v.block_frames), (300, 600, None, 120));
         let mut w = TimescaleParams::new(2.0);
         w.welch_segment = Some(101);
-        assert!(w.check(100).unwrap_err().to_string().contains("welch-segment"));
-        assert!(TimescaleParams::new(2.0).check(7).unwrap_err().to_string().contains("welch-segment"));
+        assert!(w.check(100).unwrap_err().to_string().contains("welch_segment = 101: expected"));
+        assert!(TimescaleParams::new(2.0)
+            .check(7)
+            .unwrap_err()
+            .to_string()
+            .contains("welch_segment = (default"));
         for tr in [0.0, -2.0, f64::NAN, f64::INFINITY] {
             let e = TimescaleParams::new(tr).check(100).unwrap_err().to_string();
-            assert!(e.contains("`tr`"), "{e}");
+            assert!(e.starts_with("tr_s = "), "{e}");
         }
         let mut p = TimescaleParams::new(2.0);
         p.max_lag = Some(100);
         assert!(matches!(p.check(100), Err(TimescaleError::SeriesTooShort { .. })));
         p.max_lag = Some(10);
         p.fit_lags = FitLags::Range { first: 1, last: 2 };
-        assert!(p.check(100).unwrap_err().to_string().contains("fit-lags"));
+        assert!(p.check(100).unwrap_err().to_string().starts_with("fit_lags = 1:2: expected"));
     }
 }

@@ -6,6 +6,7 @@
 //! ignored by the masked ACF.
 
 use super::TimescaleError;
+use crate::param::ParamError;
 use serde::Serialize;
 
 /// Frames to keep: framewise displacement at most `threshold_mm`, and the
@@ -18,7 +19,7 @@ use serde::Serialize;
 /// censored when `fd > threshold_mm` (strictly above).
 ///
 /// # Errors
-/// [`TimescaleError::InvalidParameter`] when the threshold is not positive
+/// [`TimescaleError::Param`] when the threshold is not positive
 /// and finite; [`TimescaleError::NonFiniteDisplacement`] for a non-finite
 /// value after the first frame.
 pub fn censor_from_displacement(
@@ -27,11 +28,7 @@ pub fn censor_from_displacement(
     after: usize,
 ) -> Result<Vec<bool>, TimescaleError> {
     if !(threshold_mm > 0.0 && threshold_mm.is_finite()) {
-        return Err(TimescaleError::InvalidParameter {
-            name: "fd-threshold",
-            value: threshold_mm.to_string(),
-            expected: "a positive displacement in mm".into(),
-        });
+        return Err(ParamError::new("fd_threshold_mm", threshold_mm, "a positive displacement in mm").into());
     }
     let mut valid = vec![true; fd_mm.len()];
     for (t, &d) in fd_mm.iter().enumerate() {

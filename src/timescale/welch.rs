@@ -1,6 +1,7 @@
 //! Welch power spectral density.
 
 use super::TimescaleError;
+use crate::param::ParamError;
 use realfft::num_complex::Complex;
 use realfft::{RealFftPlanner, RealToComplex};
 use std::sync::Arc;
@@ -51,22 +52,14 @@ impl WelchPlan {
     /// A plan for segments of `segment` frames at sampling interval `tr_s` seconds.
     ///
     /// # Errors
-    /// [`TimescaleError::InvalidParameter`] when `segment < 8` (too few
+    /// [`TimescaleError::Param`] when `segment < 8` (too few
     /// frequencies to fit a three-parameter spectrum) or `tr_s` is not positive.
     pub fn new(segment: usize, tr_s: f64) -> Result<Self, TimescaleError> {
         if segment < 8 {
-            return Err(TimescaleError::InvalidParameter {
-                name: "welch-segment",
-                value: segment.to_string(),
-                expected: "at least 8 frames".into(),
-            });
+            return Err(ParamError::new("welch_segment", segment, "at least 8 frames").into());
         }
         if !(tr_s > 0.0 && tr_s.is_finite()) {
-            return Err(TimescaleError::InvalidParameter {
-                name: "tr",
-                value: tr_s.to_string(),
-                expected: "a positive, finite repetition time in seconds".into(),
-            });
+            return Err(ParamError::new("tr_s", tr_s, "a positive, finite repetition time in seconds").into());
         }
         let window: Vec<f64> = (0..segment)
             .map(|t| 0.5 - 0.5 * (2.0 * std::f64::consts::PI * t as f64 / segment as f64).cos())
