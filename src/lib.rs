@@ -36,6 +36,7 @@ pub mod control;
 pub mod export;
 pub mod hierarchy;
 pub mod io;
+pub(crate) mod linalg;
 pub mod link;
 pub mod param;
 pub mod report;

@@ -31,9 +31,9 @@
 //! instead of an error.
 
 use super::factor::{self, Dynamics};
-use super::linalg;
 use super::system::{gram_kernel, gramian_discrete, gramian_van_loan, mode_transition, System};
 use super::{ControlError, TimeModel};
+use crate::linalg;
 use faer::{Mat, MatRef};
 use ndarray::{Array2, ArrayView1, ArrayView2};
 use serde::Serialize;

@@ -26,9 +26,9 @@
 //! diagonal; directed ones in the node basis with one matrix exponential
 //! per quadrature node.
 
-use super::linalg;
 use super::system::System;
 use super::TimeModel;
+use crate::linalg;
 use faer::{Mat, MatRef, Par};
 
 /// Gauss–Legendre nodes per short step (see the module docs for the bound).

@@ -1,8 +1,8 @@
 //! Node controllability metrics on the discrete-time normalisation.
 
-use super::linalg;
 use super::system::System;
 use super::{ControlError, TimeModel};
+use crate::linalg;
 use faer::Mat;
 use ndarray::Array1;
 

@@ -66,7 +66,6 @@
 pub mod energy;
 mod error;
 mod factor;
-pub(crate) mod linalg;
 pub mod metrics;
 mod params;
 pub mod penalised;

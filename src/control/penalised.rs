@@ -15,9 +15,9 @@
 //! Continuous time only.
 
 use super::energy::check_states;
-use super::linalg;
 use super::system::{gramian_van_loan, System};
 use super::{ControlError, TimeModel};
+use crate::linalg;
 use faer::Mat;
 use ndarray::{Array2, ArrayView1, ArrayView2};
 use serde::Serialize;

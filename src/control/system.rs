@@ -1,7 +1,7 @@
 //! The normalised linear system, its state-transition matrix and Gramian.
 
-use super::linalg::{self, SymEig};
 use super::{ControlError, TimeModel, ValidSystemParams};
+use crate::linalg::{self, SymEig};
 use faer::{Mat, MatRef, Par};
 use ndarray::{Array2, ArrayView2};
 
@@ -72,20 +72,17 @@ impl System {
                 j + 1
             )));
         }
-        let scale = adjacency.iter().fold(0.0f64, |m, v| m.max(*v));
         if !directed {
-            for i in 0..n {
-                for j in (i + 1)..n {
-                    if (adjacency[[i, j]] - adjacency[[j, i]]).abs() > 1e-10 * scale {
-                        return Err(ControlError::Connectome(format!(
-                            "declared undirected but entries ({}, {}) and ({}, {}) differ; declare it directed",
-                            i + 1,
-                            j + 1,
-                            j + 1,
-                            i + 1
-                        )));
-                    }
-                }
+            let scan = crate::linalg::asymmetry(adjacency);
+            if scan.largest > 1e-10 * scan.scale {
+                let (i, j) = scan.at;
+                return Err(ControlError::Connectome(format!(
+                    "declared undirected but entries ({}, {}) and ({}, {}) differ; declare it directed",
+                    i + 1,
+                    j + 1,
+                    j + 1,
+                    i + 1
+                )));
             }
         }
         if let Some(i) =

@@ -1,9 +1,9 @@
 //! The optimal input of one transition, its trajectory and node-wise energy.
 
 use super::energy::{check_states, norm2, select_route, within, Whitening, TERMINAL_TOLERANCE};
-use super::linalg;
 use super::system::{gram_kernel, gramian_van_loan, mode_transition, System};
 use super::{ControlError, TimeModel};
+use crate::linalg;
 use faer::Mat;
 use ndarray::{Array1, Array2, ArrayView1};
 

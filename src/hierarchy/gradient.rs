@@ -27,8 +27,9 @@
 //!    Pearson correlation with the map is ≥ 0; without one, so that its entry
 //!    of largest magnitude is positive.
 
-use super::linalg::{eigh, pearson};
+use super::linalg::eigh;
 use super::HierarchyError;
+use crate::stats::correlation::pearson_r_finite;
 use ndarray::Array2;
 use serde::Serialize;
 
@@ -232,7 +233,7 @@ pub fn diffusion_embedding(
     for l in 0..m {
         let col: Vec<f64> = comps.column(l).to_vec();
         let flip = match reference {
-            Some(r) => pearson(&col, r) < 0.0,
+            Some(r) => pearson_r_finite(&col, r).unwrap_or(f64::NAN) < 0.0,
             None => {
                 let big = col.iter().copied().fold(0.0f64, |a, b| if b.abs() > a.abs() { b } else { a });
                 big < 0.0
@@ -243,7 +244,7 @@ pub fn diffusion_embedding(
             flipped[l] = true;
         }
         if let (Some(a), Some(r)) = (alignment.as_mut(), reference) {
-            a[l] = pearson(&comps.column(l).to_vec(), r);
+            a[l] = pearson_r_finite(&comps.column(l).to_vec(), r).unwrap_or(f64::NAN);
         }
     }
     let mut notes = Vec::new();

@@ -48,7 +48,6 @@ pub mod variogram;
 
 pub use error::HierarchyError;
 pub use gradient::{diffusion_embedding, GradientParams, Gradients};
-pub use linalg::pearson;
 pub use moran::{
     moran_pairs, moran_surrogates, morans_i, MoranBasis, MoranMethod, MoranParams, MoranSurrogates,
 };

@@ -144,7 +144,8 @@ impl MoranBasis {
                 format!("expected finite weights, found {v} at row {}, column {}", i + 1, j + 1),
             ));
         }
-        let (asym, i, j) = super::linalg::asymmetry(w);
+        let scan = crate::linalg::asymmetry(w.view());
+        let (asym, (i, j)) = (scan.relative(), scan.at);
         if asym > 1e-8 {
             return Err(HierarchyError::invalid(
                 what,

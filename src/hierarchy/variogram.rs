@@ -106,7 +106,8 @@ pub fn check_distances(d: &Array2<f64>) -> Result<(), HierarchyError> {
             format!("expected finite non-negative distances, found {v} at row {}, column {}", i + 1, j + 1),
         ));
     }
-    let (asym, i, j) = super::linalg::asymmetry(d);
+    let scan = crate::linalg::asymmetry(d.view());
+    let (asym, (i, j)) = (scan.relative(), scan.at);
     if asym > 1e-8 {
         return Err(HierarchyError::invalid(
             what,

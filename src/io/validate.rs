@@ -107,17 +107,9 @@ pub fn connectome(la: &LoadedArray, rules: &ConnectomeRules) -> Result<Connectom
     }
     let mut notes = Vec::new();
     if !rules.directed {
-        let scale = w.iter().fold(0.0f64, |m, &v| m.max(v.abs()));
-        let tol = rules.symmetry_tolerance * scale;
-        let mut worst = (0.0f64, 0usize, 0usize);
-        for i in 0..r {
-            for j in (i + 1)..r {
-                let d = (w[[i, j]] - w[[j, i]]).abs();
-                if d > worst.0 {
-                    worst = (d, i, j);
-                }
-            }
-        }
+        let scan = crate::linalg::asymmetry(w.view());
+        let tol = rules.symmetry_tolerance * scan.scale;
+        let worst = (scan.largest, scan.at.0, scan.at.1);
         if worst.0 > tol {
             return Err(bad(format!(
                 "expected a symmetric matrix (undirected), but entries ({}, {}) and ({}, {}) differ by {:e} \

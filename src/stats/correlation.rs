@@ -73,6 +73,17 @@ pub fn pearson_r(x: &[f64], y: &[f64]) -> Option<f64> {
     }
 }
 
+/// Pearson r over the pairs where both values are finite; `None` when fewer
+/// than two such pairs remain or a sample is constant.
+pub fn pearson_r_finite(x: &[f64], y: &[f64]) -> Option<f64> {
+    let (a, b): (Vec<f64>, Vec<f64>) =
+        x.iter().zip(y).filter(|(p, q)| p.is_finite() && q.is_finite()).unzip();
+    if a.len() < 2 {
+        return None;
+    }
+    pearson_r(&a, &b)
+}
+
 /// Ranks 1..=n with ties given the mean of the ranks they span (scipy
 /// `rankdata(method="average")`). Inputs must be finite.
 pub fn mid_ranks(x: &[f64]) -> Vec<f64> {

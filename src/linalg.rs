@@ -1,5 +1,7 @@
-//! Thin wrappers over `faer` 0.24 with the parallelism passed in (never the
-//! global setting), plus the matrix exponential, which faer does not provide.
+//! The crate's one home for dense kernels: thin wrappers over `faer` 0.24
+//! with the parallelism passed in (never the global setting), the symmetric
+//! eigendecomposition every module uses, the symmetry scan, and the matrix
+//! exponential, which faer does not provide.
 //!
 //! Conversions between `ndarray` and `faer` happen only here and at the
 //! public boundary of the module.
@@ -49,6 +51,55 @@ pub(crate) fn sym_eig(a: MatRef<'_, f64>, par: Par) -> Result<SymEig, faer::lina
     evd::self_adjoint_evd(a, s.as_mut(), Some(u.as_mut()), par, MemStack::new(&mut buf), Default::default())?;
     let values = (0..n).map(|i| s.column_vector()[i]).collect();
     Ok(SymEig { values, vectors: u })
+}
+
+/// Eigendecomposition of a symmetric ndarray matrix `A = V diag(w) Vᵀ`
+/// (lower triangle read), eigenvalues ascending, eigenvectors as the columns
+/// of `V`: [`sym_eig`] with the conversions.
+pub(crate) fn eigh(a: ArrayView2<'_, f64>, par: Par) -> Result<(Vec<f64>, Array2<f64>), evd::EvdError> {
+    let e = sym_eig(to_faer(a).as_ref(), par)?;
+    Ok((e.values, to_nd(e.vectors.as_ref())))
+}
+
+/// Largest asymmetry `max|a_ij − a_ji|` over `i < j`, where it is, and the
+/// scale `max|a|` it is to be compared with (the one symmetry scan of the
+/// crate: connectomes, distances, spatial weights).
+pub(crate) fn asymmetry(a: ArrayView2<'_, f64>) -> Asymmetry {
+    let n = a.nrows();
+    let scale = a.iter().fold(0.0f64, |m, &v| m.max(v.abs()));
+    let mut worst = Asymmetry { largest: 0.0, at: (0, 0), scale };
+    for i in 0..n {
+        for j in (i + 1)..n {
+            let d = (a[[i, j]] - a[[j, i]]).abs();
+            if d > worst.largest {
+                worst.largest = d;
+                worst.at = (i, j);
+            }
+        }
+    }
+    worst
+}
+
+/// The result of [`asymmetry`].
+#[derive(Clone, Copy, Debug, PartialEq)]
+pub(crate) struct Asymmetry {
+    /// `max|a_ij − a_ji|`.
+    pub largest: f64,
+    /// Where (0-based, `i < j`).
+    pub at: (usize, usize),
+    /// `max|a|`.
+    pub scale: f64,
+}
+
+impl Asymmetry {
+    /// `largest / scale` (0 for a zero matrix).
+    pub fn relative(&self) -> f64 {
+        if self.scale > 0.0 {
+            self.largest / self.scale
+        } else {
+            0.0
+        }
+    }
 }
 
 /// Eigenvalues of a symmetric matrix only.
@@ -339,6 +390,19 @@ fn pade_solve(u: Mat<f64>, v: Mat<f64>, par: Par) -> Mat<f64> {
 #[cfg(test)]
 mod tests {
     use super::*;
+
+    #[test]
+    fn eigh_and_the_symmetry_scan_on_closed_forms() {
+        // [[2,1],[1,2]] has eigenvalues 1 and 3 with eigenvectors (1,∓1)/√2 (textbook 2 × 2 case).
+        let (w, v) = eigh(ndarray::array![[2.0, 1.0], [1.0, 2.0]].view(), Par::Seq).unwrap();
+        assert!((w[0] - 1.0).abs() < 1e-14 && (w[1] - 3.0).abs() < 1e-14);
+        assert!((v[[0, 1]].abs() - std::f64::consts::FRAC_1_SQRT_2).abs() < 1e-14);
+        let a = ndarray::array![[0.0, 4.0, 1.0], [4.0, 0.0, 2.0], [1.5, 2.0, 0.0]];
+        let s = asymmetry(a.view());
+        assert_eq!((s.largest, s.at, s.scale), (0.5, (0, 2), 4.0));
+        assert_eq!(s.relative(), 0.125);
+        assert_eq!(asymmetry(Array2::<f64>::zeros((2, 2)).view()).relative(), 0.0);
+    }
 
     #[test]
     fn expm_of_diagonal_and_nilpotent_matrices_is_exact() {
