@@ -101,6 +101,8 @@ fn main() {
     let sizes: Vec<usize> = std::env::args().skip(1).filter_map(|a| a.parse().ok()).collect();
     let sizes = if sizes.is_empty() { vec![100, 1_000, 10_000] } else { sizes };
     let nulls: usize = std::env::var("HIERAX_BENCH_NULLS").ok().and_then(|v| v.parse().ok()).unwrap_or(0);
+    // The synthetic connectomes are complete graphs, where edge swaps are refused.
+    let model = std::env::var("HIERAX_BENCH_NULL_MODEL").unwrap_or_else(|_| "weight-permutation".into());
     let exe = Path::new(env!("CARGO_MANIFEST_DIR")).join("target/release/hierax");
     if !exe.is_file() {
         eprintln!("build the binary first: cargo build --release");
@@ -132,7 +134,7 @@ fn main() {
             .arg("-c")
             .arg(format!(
                 "exec {} cohort run --quiet --tr 0.8 --bins 16 --no-censoring --confounds-pattern none \
-                 --map {} --data {} --out {} --network-nulls {nulls} > /dev/null",
+                 --map {} --data {} --out {} --network-nulls {nulls} --null-model {model} > /dev/null",
                 exe.display(),
                 base.join("map.csv").display(),
                 data.display(),

@@ -1,6 +1,5 @@
 //! `hierax energy`: minimum control energy between brain states.
 
-use super::subject::TimeModelArg;
 use anyhow::{anyhow, bail, Context};
 use clap::Args;
 use hierax::control::penalised::{penalised_energy_matrix, PenaltyParams};
@@ -54,7 +53,7 @@ pub struct EnergyArgs {
 
     /// Time model of the linear system.
     #[arg(long, value_enum, default_value = "continuous")]
-    time_model: TimeModelArg,
+    time_model: hierax::control::TimeModel,
 
     /// Horizon T (time units, or whole steps in discrete time).
     #[arg(long, value_name = "T", default_value_t = 1.0, allow_negative_numbers = true)]
@@ -174,7 +173,7 @@ pub fn run(args: EnergyArgs) -> anyhow::Result<ExitCode> {
     };
 
     let mut params = SystemParams::new();
-    params.time_model = args.time_model.into();
+    params.time_model = args.time_model;
     params.horizon = args.horizon;
     params.stability_offset = args.stability_offset;
     params.drivers = drivers;

@@ -33,7 +33,7 @@ pub struct InspectArgs {
 
     /// With --as series: layout of the matrix.
     #[arg(long, value_enum, default_value = "auto")]
-    orientation: OrientationArg,
+    orientation: Orientation,
 
     /// With --as series, map or mask: the expected number of regions (series,
     /// map) or frames (mask).
@@ -54,27 +54,6 @@ enum Role {
     Mask,
 }
 
-/// Command-line spelling of [`Orientation`].
-#[derive(Clone, Copy, Debug, clap::ValueEnum)]
-pub enum OrientationArg {
-    /// Settle from the region count or a header of names.
-    Auto,
-    /// Rows are time points (BIDS derivatives).
-    TimeByRegion,
-    /// Rows are regions.
-    RegionByTime,
-}
-
-impl From<OrientationArg> for Orientation {
-    fn from(o: OrientationArg) -> Self {
-        match o {
-            OrientationArg::Auto => Orientation::Auto,
-            OrientationArg::TimeByRegion => Orientation::TimeByRegion,
-            OrientationArg::RegionByTime => Orientation::RegionByTime,
-        }
-    }
-}
-
 /// Validate `la` in `role`; the notes of a passing check.
 fn check_role(la: &LoadedArray, role: Role, args: &InspectArgs) -> Result<Vec<String>, hierax::io::IoError> {
     match role {
@@ -82,7 +61,7 @@ fn check_role(la: &LoadedArray, role: Role, args: &InspectArgs) -> Result<Vec<St
             let rules = ConnectomeRules { directed: args.directed, ..Default::default() };
             validate::connectome(la, &rules).map(|c| c.notes)
         }
-        Role::Series => validate::series(la.clone(), args.orientation.into(), args.count).map(|s| {
+        Role::Series => validate::series(la.clone(), args.orientation, args.count).map(|s| {
             let mut notes =
                 vec![format!("{} frames x {} regions, {}", s.data.nrows(), s.data.ncols(), s.orientation)];
             notes.extend(s.notes);

@@ -10,24 +10,6 @@ use std::collections::BTreeMap;
 use std::path::{Path, PathBuf};
 use std::process::ExitCode;
 
-/// Command-line spelling of [`TimeModel`].
-#[derive(Clone, Copy, Debug, clap::ValueEnum)]
-pub enum TimeModelArg {
-    /// dx/dt = Ãx + Bu with Ã = A/(c + λmax) − I.
-    Continuous,
-    /// x(t+1) = Ãx(t) + Bu(t) with Ã = A/(c + λmax).
-    Discrete,
-}
-
-impl From<TimeModelArg> for TimeModel {
-    fn from(t: TimeModelArg) -> Self {
-        match t {
-            TimeModelArg::Continuous => TimeModel::Continuous,
-            TimeModelArg::Discrete => TimeModel::Discrete,
-        }
-    }
-}
-
 /// Options of the per-subject job shared by `subject` and `demo`.
 #[derive(Debug, Clone, Args)]
 pub struct JobOptions {
@@ -66,7 +48,7 @@ pub struct JobOptions {
 
     /// Time model of the network.
     #[arg(long, value_enum, default_value = "continuous")]
-    pub time_model: TimeModelArg,
+    pub time_model: TimeModel,
 
     /// Control horizon T (time units; steps for discrete time).
     #[arg(long, default_value_t = 1.0, value_name = "T")]
@@ -116,7 +98,7 @@ impl JobOptions {
         c.confound_columns = self.confound_columns.clone();
         c.detrend_order = self.detrend;
         let mut sys = SystemParams::new();
-        sys.time_model = self.time_model.into();
+        sys.time_model = self.time_model;
         sys.horizon = self.horizon;
         sys.stability_offset = self.stability_offset;
         c.system = sys;

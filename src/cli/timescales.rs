@@ -1,7 +1,7 @@
 //! `hierax timescales`: intrinsic timescales of every region of one series.
 
 use anyhow::bail;
-use clap::{Args, ValueEnum};
+use clap::Args;
 use hierax::io::provenance::{InputRecord, Provenance};
 use hierax::io::table::write_json;
 use hierax::io::validate::{self, Orientation};
@@ -12,38 +12,6 @@ use hierax::timescale::{
 };
 use std::path::PathBuf;
 use std::process::ExitCode;
-
-#[derive(Clone, Copy, Debug, PartialEq, Eq, ValueEnum)]
-enum EstimatorArg {
-    /// Every estimator below.
-    All,
-    /// Sum of the initial positive ACF x TR (Watanabe, Rees & Masuda 2019, eLife).
-    InitialPositiveSum,
-    /// First lag where the ACF drops to 0.5 (Honey et al. 2012).
-    Acw50,
-    /// First lag where the ACF drops to 0 (Golesorkhi et al. 2021).
-    Acw0,
-    /// Exponential decay fit a(exp(-k TR/tau) + b) (Murray et al. 2014).
-    ExpFit,
-    /// Knee of the Welch spectrum, tau = 1/(2 pi f_knee) (Gao et al. 2020).
-    SpectralKnee,
-}
-
-#[derive(Clone, Copy, Debug, PartialEq, Eq, ValueEnum)]
-enum OrientationArg {
-    /// Rows are frames, columns regions (BIDS derivatives).
-    TimeByRegion,
-    /// Rows are regions, columns frames.
-    RegionByTime,
-}
-
-#[derive(Clone, Copy, Debug, PartialEq, Eq, ValueEnum)]
-enum BiasArg {
-    /// No correction.
-    None,
-    /// Marriott & Pope (1954) lag-1 correction under an AR(1) model (adds AR(1) columns).
-    Ar1,
-}
 
 /// Estimate intrinsic neural timescales of every region of one resting-state
 /// series, from its autocorrelation function and power spectrum.
@@ -76,16 +44,16 @@ pub struct TimescalesArgs {
     tr: f64,
 
     /// Layout of SERIES; needed unless a header names the regions or --regions settles it.
-    #[arg(long, value_enum)]
-    orientation: Option<OrientationArg>,
+    #[arg(long, value_enum, default_value = "auto")]
+    orientation: Orientation,
 
     /// Number of regions, to settle the orientation of an unlabelled matrix.
     #[arg(long, value_name = "N")]
     regions: Option<usize>,
 
-    /// Estimators to compute (repeat or comma-separate).
-    #[arg(long, value_enum, value_delimiter = ',', default_value = "all")]
-    estimator: Vec<EstimatorArg>,
+    /// Estimators to compute (repeat or comma-separate) [default: every estimator].
+    #[arg(long, value_enum, value_delimiter = ',')]
+    estimator: Vec<Estimator>,
 
     /// Largest ACF lag in frames [default: frames / 4].
     #[arg(long, value_name = "N")]
@@ -154,7 +122,7 @@ pub struct TimescalesArgs {
 
     /// Finite-sample bias correction.
     #[arg(long, value_enum, default_value = "none")]
-    bias_correction: BiasArg,
+    bias_correction: BiasCorrection,
 
     /// Worker threads [default: one per core].
     #[arg(long, value_name = "N")]
@@ -178,12 +146,7 @@ fn pair<T: std::str::FromStr>(flag: &str, s: &str) -> anyhow::Result<(T, T)> {
 pub fn run(args: TimescalesArgs) -> anyhow::Result<ExitCode> {
     let spec = InputSpec::parse(&args.series)?;
     let la = read_array(&spec)?;
-    let orientation = match args.orientation {
-        None => Orientation::Auto,
-        Some(OrientationArg::TimeByRegion) => Orientation::TimeByRegion,
-        Some(OrientationArg::RegionByTime) => Orientation::RegionByTime,
-    };
-    let series = validate::series(la, orientation, args.regions)?;
+    let series = validate::series(la, args.orientation, args.regions)?;
     let (n_frames, n_regions) = series.data.dim();
     let names: Vec<String> =
         series.names.clone().unwrap_or_else(|| hierax::io::default_region_names(n_regions));
@@ -233,20 +196,8 @@ pub fn run(args: TimescalesArgs) -> anyhow::Result<ExitCode> {
     };
 
     let mut params = TimescaleParams::new(args.tr);
-    params.estimators = if args.estimator.contains(&EstimatorArg::All) {
-        Estimator::ALL.to_vec()
-    } else {
-        args.estimator
-            .iter()
-            .map(|e| match e {
-                EstimatorArg::InitialPositiveSum => Estimator::InitialPositiveSum,
-                EstimatorArg::Acw50 => Estimator::Acw50,
-                EstimatorArg::Acw0 => Estimator::Acw0,
-                EstimatorArg::ExpFit => Estimator::ExpFit,
-                EstimatorArg::SpectralKnee | EstimatorArg::All => Estimator::SpectralKnee,
-            })
-            .collect()
-    };
+    params.estimators =
+        if args.estimator.is_empty() { Estimator::ALL.to_vec() } else { args.estimator.clone() };
     params.max_lag = args.max_lag;
     params.nuisance = NuisanceSpec {
         demean: !args.no_demean,
@@ -265,10 +216,7 @@ pub fn run(args: TimescalesArgs) -> anyhow::Result<ExitCode> {
     params.bootstrap = args.bootstrap;
     params.block_frames = args.block_frames;
     params.seed = args.seed;
-    params.bias_correction = match args.bias_correction {
-        BiasArg::None => BiasCorrection::None,
-        BiasArg::Ar1 => BiasCorrection::Ar1,
-    };
+    params.bias_correction = args.bias_correction;
     params.threads = args.jobs;
     let valid_params = params.check(n_frames).map_err(|e| with_flags(e, &spec))?;
     let result = estimate_timescales(series.data.view(), &names, valid.as_deref(), &confounds, &valid_params)

@@ -6,11 +6,12 @@ use serde::Serialize;
 /// Continuous time `dx/dt = Ãx + Bu` or discrete time `x_{t+1} = Ãx_t + Bu_t`.
 #[derive(Clone, Copy, Debug, PartialEq, Eq, Serialize, serde::Deserialize, Default)]
 #[serde(rename_all = "kebab-case")]
+#[cfg_attr(feature = "cli", derive(clap::ValueEnum))]
 pub enum TimeModel {
-    /// `Ã = A / (c + λ_max(A)) − I` (default).
+    /// dx/dt = Ãx + Bu with Ã = A/(c + λmax(A)) − I (default).
     #[default]
     Continuous,
-    /// `Ã = A / (c + λ_max(A))`; the horizon counts steps.
+    /// x(t+1) = Ãx(t) + Bu(t) with Ã = A/(c + λmax(A)); the horizon counts steps.
     Discrete,
 }
 

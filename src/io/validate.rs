@@ -165,6 +165,7 @@ pub fn connectome(la: &LoadedArray, rules: &ConnectomeRules) -> Result<Connectom
 /// How a time-series matrix is laid out.
 #[derive(Clone, Copy, Debug, PartialEq, Eq, Serialize, serde::Deserialize, Default)]
 #[serde(rename_all = "kebab-case")]
+#[cfg_attr(feature = "cli", derive(clap::ValueEnum))]
 pub enum Orientation {
     /// Decide from the region count, or from a header of region names.
     #[default]

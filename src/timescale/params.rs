@@ -10,17 +10,18 @@ use serde::Serialize;
 /// A timescale estimator.
 #[derive(Clone, Copy, Debug, PartialEq, Eq, Hash, PartialOrd, Ord, Serialize)]
 #[serde(rename_all = "kebab-case")]
+#[cfg_attr(feature = "cli", derive(clap::ValueEnum))]
 #[non_exhaustive]
 pub enum Estimator {
-    /// Sum of the initial positive ACF × TR (Watanabe, Rees & Masuda 2019, eLife).
+    /// Sum of the initial positive ACF x TR (Watanabe, Rees & Masuda 2019, eLife).
     InitialPositiveSum,
     /// Lag where the ACF first drops to 0.5 (Honey et al. 2012).
     Acw50,
     /// Lag where the ACF first drops to 0 (Golesorkhi et al. 2021).
     Acw0,
-    /// Exponential decay fit to the ACF (Murray et al. 2014).
+    /// Exponential decay fit a(exp(-k TR/tau) + b) to the ACF (Murray et al. 2014).
     ExpFit,
-    /// Knee of the Welch power spectrum (Gao et al. 2020).
+    /// Knee of the Welch power spectrum, tau = 1/(2 pi f_knee) (Gao et al. 2020).
     SpectralKnee,
 }
 
@@ -60,15 +61,16 @@ impl Estimator {
 /// Finite-sample bias correction.
 #[derive(Clone, Copy, Debug, Default, PartialEq, Eq, Serialize)]
 #[serde(rename_all = "kebab-case")]
+#[cfg_attr(feature = "cli", derive(clap::ValueEnum))]
 #[non_exhaustive]
 pub enum BiasCorrection {
-    /// None.
+    /// No correction.
     #[default]
     None,
-    /// Marriott & Pope (1954) correction of the lag-1 ACF under an AR(1)
-    /// model, reported as an extra AR(1) timescale column (see
-    /// [`marriott_pope_lag1`](super::estimators::marriott_pope_lag1)). The
-    /// other estimators are left uncorrected.
+    /// Marriott & Pope (1954) lag-1 correction under an AR(1) model, reported as extra AR(1)
+    /// columns; the other estimators are left uncorrected.
+    ///
+    /// See [`marriott_pope_lag1`](super::estimators::marriott_pope_lag1).
     Ar1,
 }
 
