@@ -7,7 +7,7 @@
 //! | `strength-swap` | which regions are connected | degrees; strengths approximately | after Rubinov & Sporns 2011 |
 //! | `geometry-swap` | which regions are connected | degrees; edge-length distribution to the bin resolution | after Betzel & Bassett 2018 |
 //! | `weight-permutation` | which connection carries which weight | the topology; strengths approximately | after Rubinov & Sporns 2011 |
-//! | `length-bin-shuffle` | which connection carries which weight | the topology; the weight–length relation to the bin resolution | after Betzel & Bassett 2018 |
+//! | `length-bin-shuffle` | which connection carries which weight | the topology; the weight–length relation to the bin resolution; strengths approximately | after Betzel & Bassett 2018; Rubinov & Sporns 2011 |
 //!
 //! Swap models cannot rewire a dense network (in a complete graph every swap
 //! would duplicate an edge); the weight models are for dense weighted
@@ -62,8 +62,8 @@ pub enum NullModel {
     /// Weights reassigned over the same topology, matched to the original strengths (after Rubinov &
     /// Sporns 2011). For dense weighted networks.
     WeightPermutation,
-    /// Weights shuffled among edges of similar length, same topology; needs distances. For dense
-    /// weighted networks.
+    /// Weights reassigned among edges of similar length over the same topology, matched to the
+    /// original strengths; needs distances. For dense weighted networks.
     LengthBinShuffle,
 }
 
@@ -110,9 +110,10 @@ impl NullModel {
                  region's total connection weight"
             }
             NullModel::LengthBinShuffle => {
-                "the statistic is no more extreme than on the same topology with weights shuffled among \
-                 connections of similar length: it depends on which connection carries which weight, beyond \
-                 what connection length explains"
+                "the statistic is no more extreme than on the same topology with weights reassigned among \
+                 connections of similar length, keeping strengths approximately: it depends on which \
+                 connection carries which weight, beyond what connection length and each region's total \
+                 connection weight explain"
             }
         }
     }
@@ -283,7 +284,7 @@ pub fn rewire<R: Rng + ?Sized>(
         }
         NullModel::StrengthSwap => {
             swaps = Some(swaps::swap_edges(n, &mut edges, directed, params.swaps_per_edge, rng, |_, _| true));
-            permute::strength_matched(&mut edges, directed, &target, rng);
+            permute::strength_matched(&mut edges, directed, &target, None, rng);
         }
         NullModel::GeometrySwap => {
             let d = distance.expect("checked above");
@@ -300,9 +301,10 @@ pub fn rewire<R: Rng + ?Sized>(
             after.sort_by(f64::total_cmp);
             ks = Some(ks_distance_sorted(&sorted_lengths, &after));
         }
-        NullModel::WeightPermutation => permute::strength_matched(&mut edges, directed, &target, rng),
+        NullModel::WeightPermutation => permute::strength_matched(&mut edges, directed, &target, None, rng),
         NullModel::LengthBinShuffle => {
-            permute::shuffle_within_bins(&mut edges, &lengths, &bins, params.length_bins, rng);
+            let group: Vec<usize> = lengths.iter().map(|&l| bins.of(l)).collect();
+            permute::strength_matched(&mut edges, directed, &target, Some((&group, params.length_bins)), rng);
         }
     }
     let null = to_matrix(net.weights, &edges, directed);
@@ -391,8 +393,17 @@ fn refusal_reason(
         net.n_regions()
     );
     if let Some(share) = e.accepted_share {
-        let swaps =
-            format!("{accepted} of {attempted} swaps ({:.2} %) were accepted and {moved}", 100.0 * share);
+        let accepted_text = format!("{accepted} of {attempted} swaps ({:.2} %) were accepted", 100.0 * share);
+        let min_share = 100.0 * MIN_ACCEPTED_SHARE;
+        let swaps = match (share < MIN_ACCEPTED_SHARE, e.edges_changed < MIN_EDGES_CHANGED) {
+            (true, true) => format!("{accepted_text}, below the {min_share:.0} % needed, and {moved}"),
+            (true, false) => format!(
+                "{accepted_text}, below the {min_share:.0} % needed ({:.1} % of edges changed weight, but the \
+                 wiring barely moved)",
+                100.0 * e.edges_changed
+            ),
+            _ => format!("{accepted_text}, but {moved}"),
+        };
         let advice = if model == NullModel::GeometrySwap && e.density < 0.5 {
             "swaps that must keep every edge's length bin are too constrained here: use fewer length bins, or the \
              length-bin-shuffle null model"

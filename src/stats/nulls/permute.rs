@@ -1,7 +1,8 @@
 //! Weight reassignment on a fixed topology: strength matching (after
-//! Rubinov & Sporns 2011) and shuffles within edge-length bins.
+//! Rubinov & Sporns 2011), optionally within groups of edges such as
+//! edge-length bins.
 
-use super::edges::{Edge, LengthBins};
+use super::edges::Edge;
 use rand::seq::SliceRandom;
 use rand::Rng;
 
@@ -17,38 +18,66 @@ const BATCH_SHARE: f64 = 0.05;
 /// and debits the residuals. Their algorithm assigns one edge per round
 /// (O(|E|²) per network); assigning a small share per round keeps the rank
 /// matching and costs O(|E| log |E| / share).
+///
+/// With `groups` (one group per edge, e.g. its length bin), weights move
+/// only within a group and ranks are taken within the group, so what the
+/// groups stand for (the weight–length relation) is kept as well.
 pub(super) fn strength_matched<R: Rng + ?Sized>(
     edges: &mut [Edge],
     directed: bool,
     target: &(Vec<f64>, Vec<f64>),
+    groups: Option<(&[usize], usize)>,
     rng: &mut R,
 ) {
+    let (group_of, n_groups) = match groups {
+        Some((g, n)) => (g.to_vec(), n),
+        None => (vec![0; edges.len()], 1),
+    };
     let mut r_out = target.0.clone();
     let mut r_in = if directed { target.1.clone() } else { Vec::new() };
-    let mut weights: Vec<f64> = edges.iter().map(|e| e.w).collect();
-    weights.sort_by(f64::total_cmp);
-    let mut remaining: Vec<usize> = (0..edges.len()).collect();
-    let mut expected: Vec<(f64, usize)> = Vec::with_capacity(edges.len());
+    let mut weights: Vec<Vec<f64>> = vec![Vec::new(); n_groups];
+    let mut remaining: Vec<Vec<usize>> = vec![Vec::new(); n_groups];
+    for (k, e) in edges.iter().enumerate() {
+        weights[group_of[k]].push(e.w);
+        remaining[group_of[k]].push(k);
+    }
+    for w in &mut weights {
+        w.sort_by(f64::total_cmp);
+    }
     let mut taken = vec![false; edges.len()];
-    while !remaining.is_empty() {
-        expected.clear();
-        expected.extend(remaining.iter().map(|&k| {
-            let (a, b) = (edges[k].a, edges[k].b);
-            let rb = if directed { r_in[b] } else { r_out[b] };
-            (r_out[a].max(0.0) * rb.max(0.0), k)
-        }));
-        // Ties (e.g. residuals at zero) are ranked in random order: the shuffle happens before a
-        // stable sort.
-        expected.shuffle(rng);
-        expected.sort_by(|x, y| x.0.total_cmp(&y.0));
-        let batch = ((remaining.len() as f64 * BATCH_SHARE).ceil() as usize).max(1);
-        let picks = rand::seq::index::sample(rng, remaining.len(), batch);
-        for rank in picks.iter() {
-            let k = expected[rank].1;
-            let w = weights[rank];
+    let mut order: Vec<Vec<(f64, usize)>> = vec![Vec::new(); n_groups];
+    loop {
+        let total: usize = remaining.iter().map(Vec::len).sum();
+        if total == 0 {
+            break;
+        }
+        for (g, rem) in remaining.iter().enumerate() {
+            let o = &mut order[g];
+            o.clear();
+            o.extend(rem.iter().map(|&k| {
+                let (a, b) = (edges[k].a, edges[k].b);
+                let rb = if directed { r_in[b] } else { r_out[b] };
+                (r_out[a].max(0.0) * rb.max(0.0), k)
+            }));
+            // Ties (e.g. residuals at zero) are ranked in random order: shuffle, then a stable sort.
+            o.shuffle(rng);
+            o.sort_by(|x, y| x.0.total_cmp(&y.0));
+        }
+        let batch = ((total as f64 * BATCH_SHARE).ceil() as usize).max(1);
+        let mut used: Vec<Vec<bool>> = remaining.iter().map(|r| vec![false; r.len()]).collect();
+        for pick in rand::seq::index::sample(rng, total, batch).iter() {
+            // The pick-th remaining edge over the groups in order: its group and rank there.
+            let (mut g, mut rank) = (0, pick);
+            while rank >= order[g].len() {
+                rank -= order[g].len();
+                g += 1;
+            }
+            let k = order[g][rank].1;
+            let w = weights[g][rank];
             let (a, b) = (edges[k].a, edges[k].b);
             edges[k].w = w;
             taken[k] = true;
+            used[g][rank] = true;
             r_out[a] -= w;
             if directed {
                 r_in[b] -= w;
@@ -57,38 +86,13 @@ pub(super) fn strength_matched<R: Rng + ?Sized>(
             }
         }
         // Drop the assigned weights (by rank) and edges, keeping both in order.
-        let mut used = vec![false; weights.len()];
-        for rank in picks.iter() {
-            used[rank] = true;
-        }
-        let mut rank = 0;
-        weights.retain(|_| {
-            rank += 1;
-            !used[rank - 1]
-        });
-        remaining.retain(|&k| !taken[k]);
-    }
-}
-
-/// Permute weights uniformly among the edges of each length bin: the
-/// topology is kept exactly and the weight–length relation to the bin
-/// resolution.
-pub(super) fn shuffle_within_bins<R: Rng + ?Sized>(
-    edges: &mut [Edge],
-    lengths: &[f64],
-    bins: &LengthBins,
-    n_bins: usize,
-    rng: &mut R,
-) {
-    let mut members: Vec<Vec<usize>> = vec![Vec::new(); n_bins];
-    for (k, &len) in lengths.iter().enumerate() {
-        members[bins.of(len)].push(k);
-    }
-    for idx in members {
-        let mut w: Vec<f64> = idx.iter().map(|&k| edges[k].w).collect();
-        w.shuffle(rng);
-        for (&k, v) in idx.iter().zip(w) {
-            edges[k].w = v;
+        for g in 0..n_groups {
+            let mut rank = 0;
+            weights[g].retain(|_| {
+                rank += 1;
+                !used[g][rank - 1]
+            });
+            remaining[g].retain(|&k| !taken[k]);
         }
     }
 }

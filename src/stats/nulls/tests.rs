@@ -200,6 +200,24 @@ fn length_bin_shuffle_keeps_topology_and_each_bins_weights() {
         };
         assert_eq!(pick(&null), pick(&w), "bin {bin}");
     }
+    // On a network with hubs, strengths are kept far better than by a uniform shuffle within the
+    // same bins.
+    let wh = hub_network(n, 1.0, false, 6);
+    let (_, kept) = run(NullModel::LengthBinShuffle, &wh, Some(&d), false, 3);
+    let mut uniform = edges_of(wh.view(), false);
+    let mut rng = ChaCha8Rng::seed_from_u64(3);
+    for bin in 0..10 {
+        let idx: Vec<usize> =
+            (0..uniform.len()).filter(|&k| bins.of(d[[uniform[k].a, uniform[k].b]]) == bin).collect();
+        let mut ws: Vec<f64> = idx.iter().map(|&k| uniform[k].w).collect();
+        rand::seq::SliceRandom::shuffle(ws.as_mut_slice(), &mut rng);
+        for (&k, v) in idx.iter().zip(ws) {
+            uniform[k].w = v;
+        }
+    }
+    let u = to_matrix(wh.view(), &uniform, false);
+    let err_uniform = strength_error(&strengths(wh.view()), &strengths(u.view()));
+    assert!(kept.strength_error < 0.5 * err_uniform, "{} vs uniform {err_uniform}", kept.strength_error);
 }
 
 #[test]
