@@ -13,11 +13,27 @@ fn main() -> ExitCode {
     match cli::run() {
         Ok(code) => code,
         Err(err) => {
-            // One line: the error and its causes, joined by ": ".
-            eprintln!("hierax: error: {err:#}");
+            eprintln!("hierax: error: {}", one_line(&err));
             ExitCode::from(2)
         }
     }
+}
+
+/// The error and its causes joined by ": ", skipping a cause whose text the
+/// line already holds (library errors often print their source inline).
+fn one_line(err: &anyhow::Error) -> String {
+    let mut line = String::new();
+    for cause in err.chain() {
+        let text = cause.to_string();
+        if line.contains(&text) {
+            continue;
+        }
+        if !line.is_empty() {
+            line.push_str(": ");
+        }
+        line.push_str(&text);
+    }
+    line.replace('\n', " ")
 }
 
 /// Under a file-size limit (`ulimit -f`) the kernel kills a writer with

@@ -287,8 +287,14 @@ fn energy_command_refuses_bad_input_with_one_line_and_exit_2() {
             vec![good.display().to_string(), "--states".into(), states3.display().to_string()],
             "neither dimension matches",
         ),
-        (vec![good.display().to_string(), "--horizon".into(), "0".into()], "horizon = 0"),
-        (vec![good.display().to_string(), "--horizon".into(), "-1".into()], "horizon = -1"),
+        (
+            vec![good.display().to_string(), "--horizon".into(), "0".into()],
+            "--horizon 0: expected a finite number > 0",
+        ),
+        (
+            vec![good.display().to_string(), "--horizon".into(), "-1".into()],
+            "--horizon -1: expected a finite number > 0",
+        ),
         (vec![good.display().to_string(), "--drivers".into(), ",".into()], "driver set is empty"),
         (
             ["--time-model", "discrete", "--horizon", "1", "--drivers", "1,3"]

@@ -1,6 +1,7 @@
 //! All integration tests, built into one binary (see DEVELOPERS.md).
 
 mod bad_input;
+mod bad_input_safety;
 mod cli;
 mod cohort;
 mod control;

@@ -30,8 +30,10 @@ pub struct CohortArgs {
 
 #[derive(Debug, Subcommand)]
 enum CohortAction {
+    #[command(allow_negative_numbers = true)]
     Run(Box<CohortRunArgs>),
     Merge(MergeArgs),
+    #[command(allow_negative_numbers = true)]
     Sbatch(Box<SbatchArgs>),
 }
 
@@ -223,6 +225,7 @@ fn run_command(args: CohortRunArgs) -> anyhow::Result<ExitCode> {
     };
     let shared = spec.study.shared()?;
     let cfg = spec.study.config(&spec.job);
+    preflight_inputs(&cfg, &shared, spec)?;
     if args.dry_run {
         return dry_run(&manifest, &cfg, shard, &spec.out);
     }
@@ -248,6 +251,19 @@ fn run_command(args: CohortRunArgs) -> anyhow::Result<ExitCode> {
             overwrite: args.overwrite,
         },
     )
+}
+
+/// Settings that would fail every unit (map nulls without the atlas input
+/// they need, confound columns without confounds) fail once, here.
+fn preflight_inputs(cfg: &SubjectConfig, shared: &SharedInputs, spec: &CohortSpec) -> anyhow::Result<()> {
+    let valid = cfg.check().map_err(with_flag_names)?;
+    hierax::subject::check_study_inputs(
+        &valid,
+        shared.distances.is_some(),
+        shared.sphere.is_some(),
+        spec.patterns().confounds.is_some(),
+    )
+    .map_err(with_flag_names)
 }
 
 /// Print what a run would do.
@@ -549,6 +565,7 @@ fn sbatch_command(args: SbatchArgs) -> anyhow::Result<ExitCode> {
     // Everything is checked now, not on the cluster.
     let manifest = Manifest::discover(&spec.data, &spec.patterns())?;
     manifest.check_covariates(&covariate_kinds(&spec.covariates, &spec.categorical))?;
+    preflight_inputs(&spec.study.config(&spec.job), &spec.study.shared()?, spec)?;
     let cfg = spec.study.config(&spec.job).check().map_err(with_flag_names)?;
     prepare_out(&spec.out, std::slice::from_ref(&spec.data), &parameters_marker(&cfg, "cohort"), false)?;
     // The exact command: this invocation's arguments with `sbatch` and its own flags swapped for

@@ -4,7 +4,7 @@ use anyhow::{anyhow, bail, Context};
 use clap::Args;
 use hierax::control::penalised::{penalised_energy_matrix, PenaltyParams};
 use hierax::control::states::states_from_matrix;
-use hierax::control::{self, Drivers, Par, System, SystemParams};
+use hierax::control::{self, ControlError, Drivers, Par, System, SystemParams};
 use hierax::export;
 use hierax::export::folder::{write_folder, Marker};
 use hierax::hierarchy::{build_states, StatesParams};
@@ -157,6 +157,7 @@ pub fn run(args: EnergyArgs) -> anyhow::Result<ExitCode> {
 
     // Drivers.
     let d = args.drivers.trim();
+    let mut drivers_file = None;
     let drivers = if d.eq_ignore_ascii_case("all") {
         Drivers::All
     } else if looks_like_list(d) {
@@ -169,6 +170,7 @@ pub fn run(args: EnergyArgs) -> anyhow::Result<ExitCode> {
         let spec = InputSpec::parse(d)?;
         let w = read_array(&spec)?.vector()?;
         inputs.push(InputRecord::of("drivers", &spec)?);
+        drivers_file = Some(spec.to_string());
         Drivers::Weights(w.to_vec())
     };
 
@@ -177,7 +179,10 @@ pub fn run(args: EnergyArgs) -> anyhow::Result<ExitCode> {
     params.horizon = args.horizon;
     params.stability_offset = args.stability_offset;
     params.drivers = drivers;
-    let valid = params.check(n).context("invalid parameter")?;
+    let valid = params.check(n).map_err(|e| match (e, &drivers_file) {
+        (ControlError::Drivers(m), Some(file)) => anyhow!("{file}: drivers: {m}"),
+        (e, _) => control_error(e),
+    })?;
     let sys = System::new(conn.weights.view(), args.directed, &valid, Par::rayon(0))
         .map_err(|e| anyhow!("{conn_spec}: {e}"))?;
 
@@ -194,7 +199,7 @@ pub fn run(args: EnergyArgs) -> anyhow::Result<ExitCode> {
                     anyhow!("--state-penalty `{nodes}`: expected `all` or a list of node numbers such as 1-5")
                 })?)
             };
-            let pen = PenaltyParams { nodes: list, rho }.check(n).context("invalid parameter")?;
+            let pen = PenaltyParams { nodes: list, rho }.check(n).map_err(control_error)?;
             Some(penalised_energy_matrix(&sys, states.view(), &pen).context("state-penalised energy")?)
         }
         _ => None,
@@ -277,6 +282,14 @@ pub fn run(args: EnergyArgs) -> anyhow::Result<ExitCode> {
         out.display()
     );
     Ok(ExitCode::SUCCESS)
+}
+
+/// A control error with library parameter names spelled as flags.
+fn control_error(e: ControlError) -> anyhow::Error {
+    match e {
+        ControlError::Param(p) => super::subject::param_with_flag(&p),
+        other => other.into(),
+    }
 }
 
 #[cfg(test)]

@@ -28,12 +28,22 @@ pub struct Cli {
 #[derive(Debug, Subcommand)]
 enum Command {
     Inspect(inspect::InspectArgs),
+    // Negative numbers are values (e.g. --fd-threshold -1 reaches the range check).
+    #[command(allow_negative_numbers = true)]
     Timescales(Box<timescales::TimescalesArgs>),
+    // Negative numbers are values (e.g. --fd-threshold -1 reaches the range check).
+    #[command(allow_negative_numbers = true)]
     States(states::StatesArgs),
     Gradient(gradient::GradientArgs),
     Surrogates(surrogates::SurrogatesArgs),
+    // Negative numbers are values (e.g. --fd-threshold -1 reaches the range check).
+    #[command(allow_negative_numbers = true)]
     Energy(energy::EnergyArgs),
+    // Negative numbers are values (e.g. --fd-threshold -1 reaches the range check).
+    #[command(allow_negative_numbers = true)]
     Link(link::LinkArgs),
+    // Negative numbers are values (e.g. --fd-threshold -1 reaches the range check).
+    #[command(allow_negative_numbers = true)]
     Subject(Box<subject::SubjectArgs>),
     Cohort(Box<cohort::CohortArgs>),
     Demo(demo::DemoArgs),

@@ -263,14 +263,25 @@ fn subject_label(given: Option<&str>, inputs: &[&InputSpec]) -> anyhow::Result<S
         hierax::subject::check_entity("sub", s)?;
         return Ok(s.to_string());
     }
+    let mut found: Option<(String, &InputSpec)> = None;
     for spec in inputs {
         let name = spec.path.file_name().map(|n| n.to_string_lossy().into_owned()).unwrap_or_default();
         if let Some(entity) = name.split('_').next().filter(|e| e.starts_with("sub-")) {
             let entity = entity.split('.').next().unwrap_or(entity);
             if hierax::subject::check_entity("sub", entity).is_ok() {
-                return Ok(entity.to_string());
+                match &found {
+                    Some((first, at)) if first != entity => anyhow::bail!(
+                        "{spec}: names subject {entity}, but {at} names {first}; inputs of one subject must agree \
+                         (or name the subject with --subject)"
+                    ),
+                    Some(_) => {}
+                    None => found = Some((entity.to_string(), spec)),
+                }
             }
         }
+    }
+    if let Some((entity, _)) = found {
+        return Ok(entity);
     }
     anyhow::bail!(
         "--subject: the input file names carry no sub-<label> entity; name the subject with --subject sub-<label>"
@@ -283,6 +294,9 @@ pub fn with_flag_names(e: SubjectError) -> anyhow::Error {
         SubjectError::Param(p) => param_with_flag(&p),
         SubjectError::Timescales { input, source: hierax::timescale::TimescaleError::Param(p) } => {
             anyhow::anyhow!("{input}: timescales: {}", param_with_flag(&p))
+        }
+        SubjectError::Control { input, source: hierax::control::ControlError::Param(p) } => {
+            anyhow::anyhow!("{input}: control: {}", param_with_flag(&p))
         }
         SubjectError::MissingInput { input, needed_by } => {
             anyhow::anyhow!("{needed_by} need {}; none was given", flag_of(input))

@@ -219,8 +219,30 @@ pub fn run(args: TimescalesArgs) -> anyhow::Result<ExitCode> {
     params.bias_correction = args.bias_correction;
     params.threads = args.jobs;
     let valid_params = params.check(n_frames).map_err(|e| with_flags(e, &spec))?;
+    if let Some(v) = &valid {
+        // Censoring, not the series, is at fault when it leaves too few frames.
+        let n_valid = v.iter().filter(|&&x| x).count();
+        if n_valid <= valid_params.max_lag() {
+            let by = args.censor_mask.clone().or_else(|| args.confounds.clone()).unwrap_or_default();
+            bail!(
+                "{by}: censoring leaves {n_valid} of {n_frames} frames valid; the timescales need more valid frames \
+                 than the lag bound --max-lag {}",
+                valid_params.max_lag()
+            );
+        }
+    }
     let result = estimate_timescales(series.data.view(), &names, valid.as_deref(), &confounds, &valid_params)
-        .map_err(|e| with_flags(e, &spec))?;
+        .map_err(|e| {
+            let confound = match &e {
+                TimescaleError::NonFiniteConfound { .. } => true,
+                TimescaleError::RankDeficientDesign { column } => args.confound_columns.contains(column),
+                _ => false,
+            };
+            match (confound, &args.confounds) {
+                (true, Some(c)) => anyhow::Error::new(e).context(c.clone()),
+                _ => with_flags(e, &spec),
+            }
+        })?;
 
     let ok = result.regions.iter().filter(|r| r.status == RegionStatus::Ok).count();
     if ok == 0 {

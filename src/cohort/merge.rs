@@ -56,6 +56,23 @@ fn difference(a: &serde_json::Value, b: &serde_json::Value) -> String {
 /// # Errors
 /// [`CohortError::Locked`], [`CohortError::Mixed`], [`CohortError::Io`].
 pub fn gather(out: &Path) -> Result<(CohortRun, serde_json::Value), CohortError> {
+    if !out.is_dir() {
+        return Err(crate::io::IoError::format(
+            out,
+            "expected a hierax cohort output folder; there is no such folder",
+        )
+        .into());
+    }
+    if Marker::read(out).is_none() {
+        return Err(crate::io::IoError::format(
+            out,
+            format!(
+                "not a hierax cohort output (it has no {}); nothing to merge",
+                crate::export::folder::MARKER
+            ),
+        )
+        .into());
+    }
     if let Some(l) = RunLock::others(out).into_iter().next() {
         return Err(CohortError::Locked {
             path: l,
@@ -123,6 +140,12 @@ pub fn gather(out: &Path) -> Result<(CohortRun, serde_json::Value), CohortError>
         statuses
             .insert(name.clone(), SubjectStatus { subject: name.clone(), record: Some(record), error: None });
     }
-    let params = first.map(|f| f.2).unwrap_or(serde_json::Value::Null);
+    let Some((_, _, params)) = first else {
+        return Err(crate::io::IoError::format(
+            out,
+            "holds no unit folders or shard logs of hierax; nothing to merge",
+        )
+        .into());
+    };
     Ok((CohortRun { subjects: statuses.into_values().collect(), resumed: 0 }, params))
 }

@@ -5,16 +5,9 @@
 #[derive(Debug, thiserror::Error)]
 #[non_exhaustive]
 pub enum ControlError {
-    /// A parameter is outside its allowed range.
-    #[error("{name} = {value}: expected {expected}")]
-    Param {
-        /// The parameter ("horizon", "stability offset", ...).
-        name: &'static str,
-        /// The rejected value, as text.
-        value: String,
-        /// What is allowed.
-        expected: String,
-    },
+    /// A parameter is outside its allowed range (named as the library spells it).
+    #[error("{0}")]
+    Param(#[from] crate::param::ParamError),
     /// The connectome matrix cannot be used.
     #[error("connectome: {0}")]
     Connectome(String),
@@ -118,6 +111,6 @@ impl ControlError {
         value: impl std::fmt::Display,
         expected: impl Into<String>,
     ) -> Self {
-        ControlError::Param { name, value: value.to_string(), expected: expected.into() }
+        ControlError::Param(crate::param::ParamError::new(name, value, expected))
     }
 }

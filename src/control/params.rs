@@ -79,7 +79,7 @@ impl SystemParams {
         }
         let c = self.stability_offset;
         if !(c.is_finite() && c >= 0.0) {
-            return Err(ControlError::param("stability offset", c, "a finite number >= 0"));
+            return Err(ControlError::param("stability_offset", c, "a finite number >= 0"));
         }
         let weights: Vec<f64> = match &self.drivers {
             Drivers::All => vec![1.0; n],
@@ -188,7 +188,7 @@ mod tests {
         assert!(p.check(3).unwrap_err().to_string().contains("whole number"));
         let mut p = SystemParams::new();
         p.stability_offset = -1.0;
-        assert!(p.check(3).unwrap_err().to_string().contains("stability offset"));
+        assert!(p.check(3).unwrap_err().to_string().contains("stability_offset = "));
         let mut p = SystemParams::new();
         p.drivers = Drivers::Nodes(vec![]);
         assert!(p.check(3).unwrap_err().to_string().contains("empty"));

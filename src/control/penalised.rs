@@ -51,12 +51,12 @@ impl PenaltyParams {
             None => s.fill(1.0),
             Some(list) => {
                 if list.is_empty() {
-                    return Err(ControlError::param("state penalty", "[]", "at least one node"));
+                    return Err(ControlError::param("state_penalty", "[]", "at least one node"));
                 }
                 for &i in list {
                     if i >= n || s[i] != 0.0 {
                         return Err(ControlError::param(
-                            "state penalty",
+                            "state_penalty",
                             i + 1,
                             format!("distinct nodes within 1..={n}"),
                         ));
@@ -114,13 +114,13 @@ struct Flow {
 fn flow(sys: &System, pen: &ValidPenaltyParams) -> Result<Flow, ControlError> {
     if sys.params.time_model != TimeModel::Continuous {
         return Err(ControlError::param(
-            "time model",
+            "time_model",
             "discrete",
             "continuous time for state-penalised control",
         ));
     }
     if pen.s.len() != sys.n {
-        return Err(ControlError::param("state penalty", pen.s.len(), format!("{} nodes", sys.n)));
+        return Err(ControlError::param("state_penalty", pen.s.len(), format!("{} nodes", sys.n)));
     }
     let n = sys.n;
     let t = sys.params.horizon;

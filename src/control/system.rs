@@ -114,7 +114,7 @@ impl System {
             (a, Some(SymEig { values, vectors: e.vectors }), rho)
         };
         if (cst + rho).is_nan() || cst + rho <= 0.0 {
-            return Err(ControlError::param("stability offset", cst, "> 0 when the spectral radius is 0"));
+            return Err(ControlError::param("stability_offset", cst, "> 0 when the spectral radius is 0"));
         }
         let b2 = params.input_weights.iter().map(|w| w * w).collect();
         Ok(System { params: params.clone(), n, a, eig, spectral_radius: rho, b2, par })

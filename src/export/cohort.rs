@@ -142,7 +142,7 @@ pub fn models_table(models: &[OutcomeModel]) -> Table {
 }
 
 /// `cohort.json`: the parameters, every outcome's role under them, the
-/// cohort tests, the models and each subject's status. Keys are snake_case
+/// cohort tests, the models, unit counts and each failed unit's reason. Keys are snake_case
 /// names, never Rust enum names.
 pub fn cohort_json(
     parameters: &Value,
@@ -167,12 +167,16 @@ pub fn cohort_json(
             Ok(f) => json!({ "outcome": m.outcome.name(), "fit": f }),
             Err(e) => json!({ "outcome": m.outcome.name(), "error": e }),
         }).collect::<Vec<_>>(),
-        "subjects": run.iter().map(|s| json!({
-            "subject": s.subject,
-            "status": if s.record.is_some() { "ok" } else { "failed" },
-            "error": s.error,
-            "record": s.record,
-        })).collect::<Vec<_>>(),
+        // Per-unit values live in cohort.csv and run_log.csv; repeating them here as JSON values
+        // cost about 10 KB of memory per unit at write time.
+        "units": {
+            "total": run.len(),
+            "succeeded": run.iter().filter(|s| s.record.is_some()).count(),
+            "failed": run.iter().filter(|s| s.record.is_none()).map(|s| json!({
+                "subject": s.subject, "error": s.error,
+            })).collect::<Vec<_>>(),
+            "per_unit_tables": ["cohort.csv", "run_log.csv"],
+        },
         "notice": crate::io::provenance::RESEARCH_NOTICE,
     })
 }

@@ -121,7 +121,18 @@ pub fn correlation_p_value(r: f64, n: usize) -> f64 {
         return 0.0;
     }
     let df = (n - 2) as f64;
-    let t = r * (df / ((1.0 - r) * (1.0 + r))).sqrt();
+    student_t_two_sided(r * (df / ((1.0 - r) * (1.0 + r))).sqrt(), df)
+}
+
+/// Two-sided p-value 2 P(T_df > |t|) of Student's t; NaN for a NaN t, 0 for
+/// an infinite one (statrs 0.18 panics on a NaN argument, so it never gets one).
+pub(crate) fn student_t_two_sided(t: f64, df: f64) -> f64 {
+    if t.is_nan() || df.is_nan() || df <= 0.0 {
+        return f64::NAN;
+    }
+    if t.is_infinite() {
+        return 0.0;
+    }
     let dist = StudentsT::new(0.0, 1.0, df).expect("df > 0");
     (2.0 * dist.sf(t.abs())).min(1.0)
 }

@@ -98,6 +98,43 @@ pub struct LoadedSubject {
     pub specs: SubjectInputs,
 }
 
+/// Whether the settings have the inputs they need: distances for
+/// geometry-aware network nulls and variogram/Moran map nulls, sphere
+/// coordinates for spin nulls, a confounds table for confound columns. A
+/// cohort calls this once before any unit runs, so a setting that would fail
+/// every unit fails once with the real reason.
+///
+/// # Errors
+/// [`SubjectError::MissingInput`] naming the input and what needs it.
+pub fn check_study_inputs(
+    cfg: &ValidSubjectConfig,
+    distances: bool,
+    sphere: bool,
+    confounds: bool,
+) -> Result<(), SubjectError> {
+    let p = cfg.params();
+    let map_needs_distances = p.map_nulls > 0 && p.map_null_method != SurrogateMethod::Spin;
+    let needs_distances = (p.network_nulls > 0 && p.null_model.needs_distances()) || map_needs_distances;
+    if needs_distances && !distances {
+        let needed_by = if map_needs_distances {
+            format!("{} map nulls", p.map_null_method)
+        } else {
+            format!("{} network nulls", p.null_model.label())
+        };
+        return Err(SubjectError::MissingInput { input: "distances", needed_by });
+    }
+    if p.map_nulls > 0 && p.map_null_method == SurrogateMethod::Spin && !sphere {
+        return Err(SubjectError::MissingInput { input: "sphere", needed_by: "spin map nulls".into() });
+    }
+    if !confounds && !p.confound_columns.is_empty() {
+        return Err(SubjectError::MissingInput {
+            input: "confounds",
+            needed_by: format!("the confound columns {}", p.confound_columns.join(",")),
+        });
+    }
+    Ok(())
+}
+
 impl LoadedSubject {
     /// Read and validate every input the settings need.
     ///
@@ -107,25 +144,12 @@ impl LoadedSubject {
     pub fn load(inputs: &SubjectInputs, cfg: &ValidSubjectConfig) -> Result<Self, SubjectError> {
         check_unit_name(&inputs.subject)?;
         let p = cfg.params();
-        let needs_distances = (p.network_nulls > 0 && p.null_model.needs_distances())
-            || (p.map_nulls > 0 && p.map_null_method != SurrogateMethod::Spin);
-        if needs_distances && inputs.distances.is_none() {
-            let needed_by = if p.map_nulls > 0 && p.map_null_method != SurrogateMethod::Spin {
-                format!("{} map nulls", p.map_null_method)
-            } else {
-                format!("{} network nulls", p.null_model.label())
-            };
-            return Err(SubjectError::MissingInput { input: "distances", needed_by });
-        }
-        if p.map_nulls > 0 && p.map_null_method == SurrogateMethod::Spin && inputs.sphere.is_none() {
-            return Err(SubjectError::MissingInput { input: "sphere", needed_by: "spin map nulls".into() });
-        }
-        if inputs.confounds.is_none() && !p.confound_columns.is_empty() {
-            return Err(SubjectError::MissingInput {
-                input: "confounds",
-                needed_by: format!("the confound columns {}", p.confound_columns.join(",")),
-            });
-        }
+        check_study_inputs(
+            cfg,
+            inputs.distances.is_some(),
+            inputs.sphere.is_some(),
+            inputs.confounds.is_some(),
+        )?;
 
         let mut notes = Vec::new();
         let mut records = Vec::new();

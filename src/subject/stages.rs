@@ -13,7 +13,8 @@ use crate::stats::inference::{benjamini_hochberg, permutation_p_value, Alternati
 use crate::stats::nulls::{self, NullParams, RewireInfo};
 use crate::stats::StatsError;
 use crate::timescale::{
-    censor_from_displacement, estimate_timescales, ColumnSource, Estimator, NuisanceSpec, TimescaleParams,
+    censor_from_displacement, estimate_timescales, ColumnSource, Estimator, NuisanceSpec, TimescaleError,
+    TimescaleParams,
 };
 use ndarray::Array2;
 use rand::SeedableRng;
@@ -57,8 +58,36 @@ pub fn timescales(s: &LoadedSubject, cfg: &ValidSubjectConfig) -> Result<Timesca
     let vparams = tparams
         .check(n_frames)
         .map_err(|source| SubjectError::Timescales { input: series_label.clone(), source })?;
+    if let Some(v) = &valid {
+        // Censoring, not the series, is at fault when it leaves too few frames.
+        let n_valid = v.iter().filter(|&&x| x).count();
+        if n_valid <= vparams.max_lag() {
+            return Err(SubjectError::Timescales {
+                input: confounds_label(),
+                source: TimescaleError::SeriesTooShort {
+                    n_frames,
+                    n_valid,
+                    need: format!(
+                        "more valid frames than the lag bound max_lag = {} (framewise displacement above {} mm \
+                         censored the rest)",
+                        vparams.max_lag(),
+                        p.fd_threshold_mm.unwrap_or(f64::NAN)
+                    ),
+                },
+            });
+        }
+    }
     let result = estimate_timescales(s.series.view(), &s.names, valid.as_deref(), &s.confounds, &vparams)
-        .map_err(|source| SubjectError::Timescales { input: series_label.clone(), source })?;
+        .map_err(|source| {
+            // A confound column at fault is reported against the confounds table.
+            let confound = match &source {
+                TimescaleError::NonFiniteConfound { .. } => true,
+                TimescaleError::RankDeficientDesign { column } => p.confound_columns.contains(column),
+                _ => false,
+            };
+            let input = if confound { confounds_label() } else { series_label.clone() };
+            SubjectError::Timescales { input, source }
+        })?;
     let estimator = timescale_column_estimator(&p.timescale_column).ok_or_else(|| {
         crate::param::ParamError::new("timescale_column", &p.timescale_column, TIMESCALE_COLUMNS.join(", "))
     })?;

@@ -70,7 +70,7 @@ impl AcfPlan {
             return Err(TimescaleError::SeriesTooShort {
                 n_frames: n,
                 n_valid: n,
-                need: format!("more than the lag bound max_lag = {max_lag}"),
+                need: format!("more frames than the lag bound max_lag = {max_lag}"),
             });
         }
         if max_lag == 0 {

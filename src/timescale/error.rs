@@ -10,7 +10,7 @@ pub enum TimescaleError {
     #[error("{0}")]
     Param(#[from] crate::param::ParamError),
     /// The series has fewer frames than the analysis needs.
-    #[error("series has {n_frames} frames ({n_valid} valid), {need}")]
+    #[error("series has {n_frames} frames ({n_valid} valid); it needs {need}")]
     SeriesTooShort {
         /// Frames in the series.
         n_frames: usize,
