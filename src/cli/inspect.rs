@@ -117,7 +117,10 @@ fn role_guess(la: &LoadedArray) -> (String, Vec<String>) {
         [r, c] => (
             format!(
                 "a {r} x {c} matrix: as a time series, {} (pass --orientation to other commands to be sure)",
-                if r > c { "probably frames x regions" } else { "probably regions x frames" }
+                match validate::likely_orientation(*r, *c) {
+                    Orientation::RegionByTime => "probably regions x frames",
+                    _ => "probably frames x regions",
+                }
             ),
             vec![],
         ),

@@ -176,6 +176,25 @@ pub enum Orientation {
     RegionByTime,
 }
 
+/// A guess at the layout of an unlabelled `rows × cols` series, for
+/// messages only (never used to read data): a dimension above 10,000 is
+/// vertices or grayordinates, not frames (resting-state runs hold at most a
+/// few thousand frames; common practice, no source), so it is the region
+/// axis; otherwise the longer axis is taken as frames, as for parcellated
+/// series.
+pub fn likely_orientation(rows: usize, cols: usize) -> Orientation {
+    const MANY: usize = 10_000;
+    if cols > MANY && cols > rows {
+        Orientation::TimeByRegion
+    } else if rows > MANY && rows > cols {
+        Orientation::RegionByTime
+    } else if rows >= cols {
+        Orientation::TimeByRegion
+    } else {
+        Orientation::RegionByTime
+    }
+}
+
 /// A validated regional time series, always time × region.
 #[derive(Clone, Debug)]
 pub struct Series {
@@ -408,6 +427,15 @@ pub fn names_agree(a: (&str, &[String]), b: (&str, &[String])) -> Result<(), IoE
 #[cfg(test)]
 mod tests {
     use super::*;
+
+    #[test]
+    fn layout_guess_for_grayordinates_and_parcels() {
+        // 1,200 frames x 91,282 grayordinates, and its transpose; parcellated 1,200 x 400 both ways.
+        assert_eq!(likely_orientation(1200, 91_282), Orientation::TimeByRegion);
+        assert_eq!(likely_orientation(91_282, 1200), Orientation::RegionByTime);
+        assert_eq!(likely_orientation(1200, 400), Orientation::TimeByRegion);
+        assert_eq!(likely_orientation(400, 1200), Orientation::RegionByTime);
+    }
     use crate::io::{InputSpec, StoredType};
     use ndarray::array;
 
