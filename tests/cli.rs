@@ -1,6 +1,6 @@
 //! The binary end to end: what a user types and sees.
 
-use crate::util::{hierax, run, write};
+use crate::util::{hierax, repo_root, run, write};
 
 #[test]
 fn inspect_reports_a_csv_connectome() {
@@ -59,4 +59,91 @@ fn inspect_reads_every_fixture_and_demo_file() {
     assert!(paths.len() >= 40, "found only {} files", paths.len());
     let out = run(hierax().arg("inspect").args(&paths));
     assert!(out.status.success(), "inspect failed on a fixture");
+}
+
+/// Split one pasted shell command into words (whitespace, single quotes).
+fn shell_words(line: &str) -> Vec<String> {
+    let (mut words, mut cur, mut quoted, mut any) = (Vec::new(), String::new(), false, false);
+    for ch in line.chars() {
+        match ch {
+            '\'' => {
+                quoted = !quoted;
+                any = true;
+            }
+            c if c.is_whitespace() && !quoted => {
+                if any || !cur.is_empty() {
+                    words.push(std::mem::take(&mut cur));
+                }
+                any = false;
+            }
+            c => cur.push(c),
+        }
+    }
+    if any || !cur.is_empty() {
+        words.push(cur);
+    }
+    words
+}
+
+/// The example commands of a help text, as a shell would read them when pasted: a command starts
+/// with `  hierax` (or `  sh`) and continues while a line ends with a backslash. Every indented
+/// line of the example block must belong to a command, so a line wrapped by the help formatter
+/// (which would paste as a second, broken command) fails the test.
+fn help_examples(help: &str) -> Vec<String> {
+    let Some(start) = help.lines().position(|l| l.starts_with("Example")) else { return Vec::new() };
+    let mut out = Vec::new();
+    let mut lines = help.lines().skip(start + 1).peekable();
+    while let Some(l) = lines.next() {
+        if !l.starts_with("  ") {
+            continue; // prose
+        }
+        assert!(
+            l.starts_with("  hierax ") || l.starts_with("  sh "),
+            "help line is not a command start: {l:?}"
+        );
+        let mut cmd = l.trim().to_string();
+        while cmd.ends_with('\\') {
+            cmd.pop();
+            let next = lines.next().unwrap_or_else(|| panic!("continuation missing after {cmd:?}"));
+            assert!(next.starts_with("    "), "continuation not indented: {next:?}");
+            cmd.push(' ');
+            cmd.push_str(next.trim());
+        }
+        out.push(cmd);
+    }
+    out
+}
+
+#[test]
+fn every_help_example_pastes_and_runs() {
+    let dir = tempfile::tempdir().unwrap();
+    std::os::unix::fs::symlink(repo_root().join("demo-data"), dir.path().join("demo-data")).unwrap();
+    let commands: &[&[&str]] = &[
+        &["inspect"],
+        &["timescales"],
+        &["states"],
+        &["gradient"],
+        &["surrogates"],
+        &["energy"],
+        &["link"],
+        &["subject"],
+        &["cohort", "run"],
+        &["cohort", "merge"],
+        &["cohort", "sbatch"],
+        &["demo"],
+    ];
+    let mut ran = 0;
+    for c in commands {
+        let help = run(hierax().args(*c).arg("--help"));
+        let text = String::from_utf8(help.stdout).unwrap();
+        let examples = help_examples(&text);
+        assert!(!examples.is_empty(), "{c:?} --help has no example");
+        for ex in examples.iter().filter(|e| e.starts_with("hierax ")) {
+            let words = shell_words(ex);
+            let o = run(hierax().current_dir(dir.path()).args(&words[1..]));
+            assert!(o.status.success(), "example failed: {ex}\n{}", String::from_utf8_lossy(&o.stderr));
+            ran += 1;
+        }
+    }
+    assert!(ran >= 18, "only {ran} examples ran");
 }

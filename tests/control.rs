@@ -643,7 +643,7 @@ fn energy_help_has_a_worked_example() {
     let o = run(hierax().args(["energy", "--help"]));
     assert!(o.status.success());
     let text = String::from_utf8(o.stdout).unwrap();
-    assert!(text.contains("hierax energy sub-01_connectome.csv --map"), "{text}");
+    assert!(text.contains("hierax energy demo-data/sub-01/sub-01_connectome.csv"), "{text}");
     assert!(text.contains("not for clinical decisions"), "{text}");
 }
 

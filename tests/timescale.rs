@@ -386,7 +386,7 @@ fn cli_help_has_a_worked_example() {
     let o = run(hierax().args(["timescales", "--help"]));
     assert!(o.status.success());
     let text = String::from_utf8(o.stdout).unwrap();
-    assert!(text.contains("hierax timescales sub-01_bold.tsv --tr 0.72"), "{text}");
+    assert!(text.contains("hierax timescales demo-data/sub-01/sub-01_bold.npy --tr 2"), "{text}");
 }
 
 #[test]

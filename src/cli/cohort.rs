@@ -94,7 +94,8 @@ pub struct CohortSpec {
     hierax cohort run --data demo-data --tr 2 --map demo-data/atlas/hierarchy.csv \\\n    \
     --connectome-pattern 'sub-{subject}/sub-{subject}_connectome.csv' \\\n    \
     --series-pattern 'sub-{subject}/sub-{subject}_bold.npy' \\\n    \
-    --confounds-pattern 'sub-{subject}/sub-{subject}_confounds.tsv' --confound-columns global_signal,trans_x \\\n    \
+    --confounds-pattern 'sub-{subject}/sub-{subject}_confounds.tsv' \\\n    \
+    --confound-columns global_signal,trans_x \\\n    \
     --covariates age --categorical sex --out cohort-output\n\n\
     {subject} stands for the participant label without `sub-`.")]
 pub struct CohortRunArgs {
@@ -146,8 +147,8 @@ pub struct MergeArgs {
 #[derive(Debug, Args)]
 #[command(after_help = "Example:\n  \
     hierax cohort sbatch --shards 40 --time 02:00:00 --mem 4G --data demo-data --tr 2 \\\n    \
-    --map demo-data/atlas/hierarchy.csv --out cohort-output\n  \
-    sh cohort-output/slurm/submit.sh")]
+    --map demo-data/atlas/hierarchy.csv --out cohort-cluster\n  \
+    sh cohort-cluster/slurm/submit.sh")]
 pub struct SbatchArgs {
     #[command(flatten)]
     spec: CohortSpec,

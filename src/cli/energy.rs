@@ -24,7 +24,9 @@ use std::process::ExitCode;
 /// Research software: results are not for clinical decisions.
 #[derive(Debug, Args)]
 #[command(after_help = "Example (bins of an invented hierarchy map):\n  \
-    hierax energy sub-01_connectome.csv --map hierarchy.csv --bins 8 --horizon 1 --out results/sub-01\n\n\
+    hierax energy demo-data/sub-01/sub-01_connectome.csv \\\n    \
+    --map demo-data/atlas/hierarchy.csv --bins 8 \\\n    \
+    --horizon 1 --out energy-example\n\n\
     Writes energy.csv (one row per ordered pair of states), energy_matrix.csv and asymmetry_matrix.csv \
     (rows: initial state, columns: target state), node_metrics.csv, qc.csv and control.json (parameters, \
     input digests, numerical quality). Nodes are numbered from 1.\n\n\

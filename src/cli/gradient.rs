@@ -21,7 +21,8 @@ use std::process::ExitCode;
 /// gradient.json (parameters, conventions, provenance).
 #[derive(Debug, Args)]
 #[command(after_help = "Example:\n  \
-    hierax gradient sub-01_fc.npy --components 3 --align-to atlas_map.csv:myelin --out out/gradient\n\n\
+    hierax gradient demo-data/sub-01/sub-01_connectome.csv --components 3 \\\n    \
+    --align-to demo-data/atlas/hierarchy.csv --out gradient-example\n\n\
     Research software: results are not for clinical decisions.")]
 pub struct GradientArgs {
     /// Affinity source, PATH[:KEY]: regions x features (e.g. an FC matrix).

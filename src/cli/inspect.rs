@@ -11,9 +11,10 @@ use std::process::ExitCode;
 #[derive(Debug, Args)]
 #[command(after_help = "Examples:\n  \
     hierax inspect demo-data/sub-01/sub-01_connectome.csv\n  \
-    hierax inspect sc.mat:SC bold.npy atlas.h5:/hierarchy/myelin\n  \
-    hierax inspect confounds.tsv:framewise_displacement\n  \
-    hierax inspect --as series --count 100 sub-01_bold.npy")]
+    hierax inspect demo-data/sub-01/sub-01_bold.npy demo-data/atlas/distances.npy\n  \
+    hierax inspect demo-data/sub-01/sub-01_confounds.tsv:framewise_displacement\n  \
+    hierax inspect --as series --count 100 demo-data/sub-01/sub-01_bold.npy\n\n\
+    Also reads .mat (PATH:variable), .h5 (PATH:/dataset) and .npz (PATH:array).")]
 pub struct InspectArgs {
     /// Inputs as PATH[:KEY] (KEY: .npz array, .h5/.mat dataset or variable, CSV/TSV column).
     #[arg(required = true, value_name = "PATH[:KEY]")]

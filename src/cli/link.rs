@@ -19,9 +19,12 @@ use std::process::ExitCode;
 /// whose states are ordered along the hierarchy, and summarise it.
 #[derive(Debug, Args)]
 #[command(after_help = "Examples (the bundled invented data):\n  \
-    hierax energy demo-data/sub-01/sub-01_connectome.csv --map demo-data/atlas/hierarchy.csv --bins 10 --out energy-output\n  \
-    hierax timescales demo-data/sub-01/sub-01_bold.npy --tr 2 --orientation time-by-region --out timescales-output\n  \
-    hierax link --energy energy-output/energy_matrix.csv --timescales timescales-output/timescales.csv:ips_tau_s \\\n    \
+    hierax energy demo-data/sub-01/sub-01_connectome.csv \\\n    \
+    --map demo-data/atlas/hierarchy.csv --bins 10 --out energy-output\n  \
+    hierax timescales demo-data/sub-01/sub-01_bold.npy --tr 2 --orientation time-by-region \\\n    \
+    --out timescales-output\n  \
+    hierax link --energy energy-output/energy_matrix.csv \\\n    \
+    --timescales timescales-output/timescales.csv:ips_tau_s \\\n    \
     --map demo-data/atlas/hierarchy.csv --bins 10 --out link-output\n\n\
     States are counted from 1 in pairs.csv, as in every hierax output.")]
 pub struct LinkArgs {

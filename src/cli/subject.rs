@@ -171,10 +171,14 @@ impl StudyArgs {
     --connectome demo-data/sub-01/sub-01_connectome.csv \\\n    \
     --series demo-data/sub-01/sub-01_bold.npy \\\n    \
     --map demo-data/atlas/hierarchy.csv \\\n    \
-    --confounds demo-data/sub-01/sub-01_confounds.tsv --confound-columns global_signal,trans_x,trans_y \\\n    \
+    --confounds demo-data/sub-01/sub-01_confounds.tsv \\\n    \
+    --confound-columns global_signal,trans_x,trans_y \\\n    \
     --sphere demo-data/atlas/regions.tsv:sphere_x,sphere_y,sphere_z \\\n    \
     --hemisphere demo-data/atlas/regions.tsv:hemisphere \\\n    \
-    --network-nulls 100 --map-nulls 100 --out results")]
+    --network-nulls 100 --null-model weight-permutation \\\n    \
+    --map-nulls 100 --out results\n\n\
+    The invented connectomes are 93 % dense, so edge swaps cannot rewire them: dense weighted networks \
+    take weight-permutation or length-bin-shuffle nulls.")]
 pub struct SubjectArgs {
     /// Subject, sub-<label> with an alphanumeric label (BIDS). Default: the sub- entity of the
     /// connectome's or series' file name; required when they carry none.

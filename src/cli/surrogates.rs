@@ -20,7 +20,7 @@ enum Method {
     Spin,
     /// Variogram-matched surrogates (needs --distances).
     Variogram,
-    /// Moran spectral randomisation (needs --weights).
+    /// Moran spectral randomisation (needs --weights, or --distances for inverse-distance weights).
     Moran,
 }
 
@@ -54,9 +54,14 @@ enum MoranKind {
 /// (parameters, diagnostics, provenance).
 #[derive(Debug, Args)]
 #[command(after_help = "Examples:\n  \
-    hierax surrogates map.csv --method spin --sphere-coords centroids.csv --hemisphere hemi.csv --count 1000 --seed 1 --out out/spin\n  \
-    hierax surrogates map.csv --method variogram --distances geodesic.npy --count 1000 --seed 1 --out out/vario\n  \
-    hierax surrogates map.csv --method moran --weights inverse_distance.npy --count 1000 --seed 1 --out out/moran\n\n\
+    hierax surrogates demo-data/atlas/hierarchy.csv --method spin \\\n    \
+    --sphere-coords demo-data/atlas/regions.tsv:sphere_x,sphere_y,sphere_z \\\n    \
+    --hemisphere demo-data/atlas/regions.tsv:hemisphere \\\n    \
+    --count 1000 --seed 1 --out spin-example\n  \
+    hierax surrogates demo-data/atlas/hierarchy.csv --method variogram \\\n    \
+    --distances demo-data/atlas/distances.npy --count 100 --seed 1 --out variogram-example\n  \
+    hierax surrogates demo-data/atlas/hierarchy.csv --method moran \\\n    \
+    --distances demo-data/atlas/distances.npy --count 1000 --seed 1 --out moran-example\n\n\
     Research software: results are not for clinical decisions.")]
 pub struct SurrogatesArgs {
     /// The map, PATH[:KEY], one value per region.
@@ -83,8 +88,9 @@ pub struct SurrogatesArgs {
     #[arg(long, value_name = "SPEC", required_if_eq("method", "variogram"))]
     distances: Option<String>,
 
-    /// Spatial weight matrix, PATH[:KEY], regions x regions, symmetric (moran).
-    #[arg(long, value_name = "SPEC", required_if_eq("method", "moran"))]
+    /// Spatial weight matrix, PATH[:KEY], regions x regions, symmetric (moran); without it, moran
+    /// uses inverse distances 1/d from --distances, as the subject job does.
+    #[arg(long, value_name = "SPEC")]
     weights: Option<String>,
 
     /// Moran randomisation variant.
@@ -128,7 +134,7 @@ pub fn run(args: SurrogatesArgs) -> anyhow::Result<ExitCode> {
             let hemi = match &args.hemisphere {
                 Some(h) => {
                     let hs = InputSpec::parse(h)?;
-                    let v = read_array(&hs)?.vector()?.to_vec();
+                    let v = hierax::subject::hemisphere_codes(&hs)?;
                     inputs.push(InputRecord::of("hemisphere", &hs)?);
                     Some(v)
                 }
@@ -196,8 +202,11 @@ pub fn run(args: SurrogatesArgs) -> anyhow::Result<ExitCode> {
             (s.surrogates, diag, serde_json::to_value(&p)?)
         }
         Method::Moran => {
-            let raw = args.weights.as_deref().context("--method moran needs --weights")?;
+            let raw = args.weights.as_deref().or(args.distances.as_deref());
+            let raw =
+                raw.context("--method moran needs --weights (or --distances for inverse-distance weights)")?;
             let (wspec, w) = load_matrix(raw)?;
+            let w = if args.weights.is_some() { w } else { hierax::hierarchy::inverse_distance_weights(&w) };
             if w.nrows() != n {
                 anyhow::bail!("{wspec}: weight matrix: expected {n} x {n} for the {n} regions of {map_spec}, found {} x {}", w.nrows(), w.ncols());
             }

@@ -27,12 +27,12 @@ use std::process::ExitCode;
 ///
 /// Research software: results are not for clinical decisions.
 #[derive(Debug, Args)]
-#[command(after_help = "Example (invented demo data; TR 0.72 s is a common multiband resting-state value, \
-    no source):\n  \
-    hierax timescales sub-01_bold.tsv --tr 0.72 --orientation time-by-region \\\n    \
-    --estimator acw0 --estimator exp-fit --max-lag 100 --detrend 2 \\\n    \
-    --confounds sub-01_confounds.tsv --confound-columns trans_x,trans_y,rot_z \\\n    \
-    --fd-threshold 0.5 --censor-after 2 --bootstrap 200 --seed 7 --out results/sub-01\n\n\
+#[command(after_help = "Example (the bundled invented data, TR 2 s):\n  \
+    hierax timescales demo-data/sub-01/sub-01_bold.npy --tr 2 --orientation time-by-region \\\n    \
+    --estimator acw0 --estimator exp-fit --max-lag 60 --detrend 2 \\\n    \
+    --confounds demo-data/sub-01/sub-01_confounds.tsv \\\n    \
+    --confound-columns trans_x,trans_y,rot_z \\\n    \
+    --fd-threshold 0.5 --censor-after 2 --bootstrap 200 --seed 7 --out timescales-example\n\n\
     Exit codes: 0 written (regions with a non-ok status are counted on stderr); 2 bad input, nothing written.")]
 pub struct TimescalesArgs {
     /// The series, PATH[:KEY] (.csv/.tsv/.txt, .npy, .npz:array, .h5:/dataset, .mat:variable).

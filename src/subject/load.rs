@@ -296,7 +296,10 @@ fn read_confounds(
 
 /// Hemisphere of each parcel as 0 (left) or 1 (right), from numbers or from
 /// text labels `L`/`R`/`left`/`right` (any case) in a delimited column.
-fn hemisphere_codes(spec: &InputSpec) -> Result<Vec<f64>, IoError> {
+///
+/// # Errors
+/// [`IoError`] when the file cannot be read or a label is neither.
+pub fn hemisphere_codes(spec: &InputSpec) -> Result<Vec<f64>, IoError> {
     if let Ok(la) = read_array(spec) {
         return Ok(la.vector()?.to_vec());
     }

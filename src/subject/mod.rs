@@ -30,7 +30,9 @@ pub mod stages;
 
 pub use config::{NullModel, SubjectConfig, ValidSubjectConfig};
 pub use error::SubjectError;
-pub use load::{check_entity, check_study_inputs, check_unit_name, LoadedSubject, SubjectInputs};
+pub use load::{
+    check_entity, check_study_inputs, check_unit_name, hemisphere_codes, LoadedSubject, SubjectInputs,
+};
 pub use outcomes::{NullFamily, Outcome, OutcomeRole};
 pub use record::{SubjectRecord, SubjectStatus};
 pub use result::{NullTest, SubjectResult};
