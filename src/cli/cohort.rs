@@ -236,7 +236,7 @@ fn run_command(args: CohortRunArgs) -> anyhow::Result<ExitCode> {
     println!("hierax cohort: {} units from {}", manifest.participants.len(), spec.data.display());
     let title = format!("hierax cohort report: {}", spec.data.display());
     run_and_report(
-        &manifest,
+        manifest,
         &shared,
         &cfg,
         &spec.out,
@@ -430,7 +430,7 @@ impl Progress {
 /// Run every unit, then write the cohort files and the report (or, for a
 /// shard, its log); print a summary.
 pub fn run_and_report(
-    manifest: &Manifest,
+    manifest: Manifest,
     shared: &SharedInputs,
     cfg: &SubjectConfig,
     out: &Path,
@@ -443,7 +443,7 @@ pub fn run_and_report(
     let _lock = RunLock::acquire(out, lock_name.as_deref())?;
     let progress = Progress::new(manifest.participants.len(), rep.quiet);
     let run = run_cohort(
-        manifest,
+        &manifest,
         shared,
         &cfg,
         out,
@@ -451,6 +451,8 @@ pub fn run_and_report(
         &|s| progress.finished(s),
     )?;
     progress.bar.finish_and_clear();
+    // The units' paths are no longer needed; free them before the cohort tables are built.
+    drop(manifest);
     println!(
         "  units         {} succeeded ({} kept from an earlier run), {} failed",
         run.records().len(),
@@ -458,11 +460,12 @@ pub fn run_and_report(
         run.n_failed()
     );
     if let Some((i, n)) = rep.shard {
+        let failed = run.n_failed();
         let log = ShardLog {
             shard: format!("{i}/{n}"),
             version: hierax::VERSION.into(),
             parameters: serde_json::to_value(cfg.params())?,
-            subjects: run.subjects.clone(),
+            subjects: run.subjects,
         };
         hierax::io::table::write_json(&out.join(shard_log_name(i, n)), &log)?;
         println!(
@@ -470,7 +473,7 @@ pub fn run_and_report(
             out.display(),
             out.display()
         );
-        return Ok(if run.n_failed() == 0 { ExitCode::SUCCESS } else { ExitCode::from(1) });
+        return Ok(if failed == 0 { ExitCode::SUCCESS } else { ExitCode::from(1) });
     }
     finish(out, &run, &cfg, covariates, rep.title, rep.intro)
 }

@@ -79,7 +79,7 @@ pub fn run(args: DemoArgs) -> anyhow::Result<ExitCode> {
         args.nulls
     );
     let code = run_and_report(
-        &manifest,
+        manifest,
         &shared,
         &cfg,
         &args.out,
