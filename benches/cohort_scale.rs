@@ -9,8 +9,8 @@
 //! cargo bench --bench cohort_scale -- 100 1000          # chosen sizes
 //! HIERAX_BENCH_NULLS=1000 cargo bench --bench cohort_scale -- 20
 //! ```
-//! Peak RSS is the child's maximum resident set (getrusage), so each size runs
-//! in its own process. Research software: results are not for clinical decisions.
+//! Peak RSS is each child's own maximum resident set (wait4), one process per size.
+//! Research software: results are not for clinical decisions.
 
 use hierax::io::table::{Column, Table};
 use ndarray::{Array2, ArrayD};
@@ -85,16 +85,18 @@ fn make_cohort(base: &Path, dir: &Path, units: usize) {
     std::fs::write(dir.join("participants.tsv"), p).unwrap();
 }
 
-/// Peak RSS of terminated children, in MB (Linux reports KiB).
-fn children_max_rss_mb() -> f64 {
+/// Wait for child `pid` and return (exited 0, its own peak RSS in MB; Linux reports KiB).
+fn wait_with_peak_rss_mb(pid: u32) -> (bool, f64) {
     let mut ru = std::mem::MaybeUninit::<libc::rusage>::zeroed();
-    // SAFETY: getrusage writes into the provided struct.
-    let ok = unsafe { libc::getrusage(libc::RUSAGE_CHILDREN, ru.as_mut_ptr()) } == 0;
-    if !ok {
-        return f64::NAN;
+    let mut status: libc::c_int = 0;
+    // SAFETY: wait4 writes the status and the rusage of the reaped child into the given pointers.
+    let r = unsafe { libc::wait4(pid as libc::pid_t, &mut status, 0, ru.as_mut_ptr()) };
+    if r != pid as libc::pid_t {
+        return (false, f64::NAN);
     }
     // SAFETY: initialised by the successful call above.
-    unsafe { ru.assume_init() }.ru_maxrss as f64 / 1024.0
+    let ru = unsafe { ru.assume_init() };
+    (libc::WIFEXITED(status) && libc::WEXITSTATUS(status) == 0, ru.ru_maxrss as f64 / 1024.0)
 }
 
 fn main() {
@@ -127,10 +129,10 @@ fn main() {
         make_cohort(&base, &data, units);
         let out = root.join(format!("out-{units}-{nulls}"));
         let _ = std::fs::remove_dir_all(&out);
-        // One child per size: ru_maxrss of children is the largest child so far, so sizes run
-        // in increasing order and each reading is that size's own peak.
+        // One child per size, reaped with wait4 so that the peak RSS is that child's own.
         let start = Instant::now();
-        let status = Command::new("/bin/sh")
+        #[allow(clippy::zombie_processes)] // reaped by wait4 in wait_with_peak_rss_mb
+        let child = Command::new("/bin/sh")
             .arg("-c")
             .arg(format!(
                 "exec {} cohort run --quiet --tr 0.8 --bins 16 --no-censoring --confounds-pattern none \
@@ -140,11 +142,11 @@ fn main() {
                 data.display(),
                 out.display()
             ))
-            .status()
+            .spawn()
             .unwrap();
+        let (ok, rss) = wait_with_peak_rss_mb(child.id());
         let wall = start.elapsed().as_secs_f64();
-        assert!(status.success(), "cohort run failed at {units} units");
-        let rss = children_max_rss_mb();
+        assert!(ok, "cohort run failed at {units} units");
         println!(
             "{units:>8} {wall:>10.1} {:>12.1} {rss:>12.1} {:>14.0}",
             units as f64 / wall,
