@@ -232,16 +232,9 @@ pub fn run(args: TimescalesArgs) -> anyhow::Result<ExitCode> {
         }
     }
     let result = estimate_timescales(series.data.view(), &names, valid.as_deref(), &confounds, &valid_params)
-        .map_err(|e| {
-            let confound = match &e {
-                TimescaleError::NonFiniteConfound { .. } => true,
-                TimescaleError::RankDeficientDesign { column } => args.confound_columns.contains(column),
-                _ => false,
-            };
-            match (confound, &args.confounds) {
-                (true, Some(c)) => anyhow::Error::new(e).context(c.clone()),
-                _ => with_flags(e, &spec),
-            }
+        .map_err(|e| match (e.blames_confounds(&args.confound_columns), &args.confounds) {
+            (true, Some(c)) => anyhow::Error::new(e).context(c.clone()),
+            _ => with_flags(e, &spec),
         })?;
 
     let ok = result.regions.iter().filter(|r| r.status == RegionStatus::Ok).count();

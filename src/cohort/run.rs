@@ -205,7 +205,8 @@ pub fn remove_dead_staging(out: &Path) {
         let name = e.file_name().to_string_lossy().into_owned();
         let Some(stem) = name.strip_prefix('.').and_then(|n| n.strip_suffix(".partial")) else { continue };
         let Some(pid) = stem.rsplit('.').next().and_then(|p| p.parse::<u32>().ok()) else { continue };
-        if pid != std::process::id() && !alive(pid) && e.path().is_dir() {
+        // Only staging of ours: it carries the marker from its start.
+        if pid != std::process::id() && !alive(pid) && e.path().join(MARKER).is_file() {
             let _ = std::fs::remove_dir_all(e.path());
         }
     }
@@ -301,11 +302,16 @@ mod tests {
         // A lock of a process that cannot exist: 4194999 is above Linux's largest pid_max (2^22).
         std::fs::write(dir.path().join(".hierax-lock"), format!("4194999 {}\n", host())).unwrap();
         let _l = RunLock::acquire(dir.path(), None).unwrap();
-        // Dead staging folders go, live ones stay.
-        std::fs::create_dir(dir.path().join(".sub-01.4194999.partial")).unwrap();
+        // Dead staging folders of ours go; live ones and unmarked look-alikes stay.
+        let dead = dir.path().join(".sub-01.4194999.partial");
+        std::fs::create_dir(&dead).unwrap();
+        std::fs::write(dead.join(MARKER), "{}").unwrap();
+        let users = dir.path().join(".notes.4194999.partial");
+        std::fs::create_dir(&users).unwrap();
         let mine = dir.path().join(format!(".sub-02.{}.partial", std::process::id()));
         std::fs::create_dir(&mine).unwrap();
+        std::fs::write(mine.join(MARKER), "{}").unwrap();
         remove_dead_staging(dir.path());
-        assert!(!dir.path().join(".sub-01.4194999.partial").exists() && mine.exists());
+        assert!(!dead.exists() && mine.exists() && users.exists());
     }
 }

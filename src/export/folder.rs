@@ -128,9 +128,18 @@ impl StagedFolder {
         check_replaceable(&target)?;
         let tmp = parent.join(format!(".{name}.{}.partial", std::process::id()));
         if tmp.exists() {
+            // Only a staging folder of ours (it carries the marker from its start) is removed.
+            if !tmp.join(MARKER).is_file() {
+                return Err(IoError::NotOurs {
+                    path: tmp,
+                    reason: format!("is in the way of a staging folder and has no {MARKER}"),
+                });
+            }
             std::fs::remove_dir_all(&tmp).map_err(|e| IoError::os(&tmp, "cannot remove", e))?;
         }
         std::fs::create_dir_all(&tmp).map_err(|e| IoError::os(&tmp, "cannot create directory", e))?;
+        // Marked from the start, so a later run can tell a dead run's staging from a user's folder.
+        marker.write(&tmp)?;
         Ok(StagedFolder { tmp, target, marker, committed: false })
     }
 

@@ -79,13 +79,11 @@ pub fn timescales(s: &LoadedSubject, cfg: &ValidSubjectConfig) -> Result<Timesca
     }
     let result = estimate_timescales(s.series.view(), &s.names, valid.as_deref(), &s.confounds, &vparams)
         .map_err(|source| {
-            // A confound column at fault is reported against the confounds table.
-            let confound = match &source {
-                TimescaleError::NonFiniteConfound { .. } => true,
-                TimescaleError::RankDeficientDesign { column } => p.confound_columns.contains(column),
-                _ => false,
+            let input = if source.blames_confounds(&p.confound_columns) {
+                confounds_label()
+            } else {
+                series_label.clone()
             };
-            let input = if confound { confounds_label() } else { series_label.clone() };
             SubjectError::Timescales { input, source }
         })?;
     let estimator = timescale_column_estimator(&p.timescale_column).ok_or_else(|| {

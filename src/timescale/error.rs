@@ -69,3 +69,16 @@ pub enum TimescaleError {
         expected: String,
     },
 }
+
+impl TimescaleError {
+    /// Whether the confounds table, not the series, is at fault: a confound
+    /// non-finite on a valid frame, or one of `confound_columns` that adds
+    /// nothing to the nuisance design (e.g. a constant column).
+    pub fn blames_confounds(&self, confound_columns: &[String]) -> bool {
+        match self {
+            TimescaleError::NonFiniteConfound { .. } => true,
+            TimescaleError::RankDeficientDesign { column } => confound_columns.contains(column),
+            _ => false,
+        }
+    }
+}
