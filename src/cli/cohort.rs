@@ -8,8 +8,7 @@ use clap::{Args, Subcommand};
 use hierax::cohort::merge::{gather, shard_log_name, ShardLog};
 use hierax::cohort::run::parameters_marker;
 use hierax::cohort::{
-    analyse_cohort, run_cohort, write_cohort, CovariateKind, Manifest, Patterns, RunLock, RunOptions,
-    SharedInputs,
+    finish_cohort, run_cohort, CovariateKind, Manifest, Patterns, RunLock, RunOptions, SharedInputs,
 };
 use hierax::export::folder::{claim_root, Marker};
 use hierax::subject::{SubjectConfig, SubjectStatus, ValidSubjectConfig};
@@ -455,7 +454,7 @@ pub fn run_and_report(
     drop(manifest);
     println!(
         "  units         {} succeeded ({} kept from an earlier run), {} failed",
-        run.records().len(),
+        run.n_succeeded(),
         run.resumed,
         run.n_failed()
     );
@@ -465,7 +464,7 @@ pub fn run_and_report(
             shard: format!("{i}/{n}"),
             version: hierax::VERSION.into(),
             parameters: serde_json::to_value(cfg.params())?,
-            subjects: run.subjects,
+            units: run.units,
         };
         hierax::io::table::write_json(&out.join(shard_log_name(i, n)), &log)?;
         println!(
@@ -488,11 +487,10 @@ fn finish(
     intro: &str,
 ) -> anyhow::Result<ExitCode> {
     let names: Vec<&str> = covariates.iter().map(|(c, _)| *c).collect();
-    let analysis = analyse_cohort(run, cfg, &names)?;
-    write_cohort(out, run, cfg, &analysis, title, intro)?;
-    if run.records().is_empty() {
-        let first = run.subjects.iter().find_map(|s| s.error.clone()).unwrap_or_default();
-        eprintln!("hierax: error: every unit failed ({}); the first: {first}", run.subjects.len());
+    let (_, analysis) = finish_cohort(run, cfg, &names, title, intro)?;
+    if run.n_succeeded() == 0 {
+        let first = run.units.iter().find_map(|s| s.error.clone()).unwrap_or_default();
+        eprintln!("hierax: error: every unit failed ({}); the first: {first}", run.units.len());
         println!("  written to    {} (run_log.csv lists every failure)", out.display());
         return Ok(ExitCode::from(1));
     }
@@ -539,8 +537,8 @@ fn merge_command(args: MergeArgs) -> anyhow::Result<ExitCode> {
         .with_context(|| format!("{}: the units' parameters cannot be read back", args.out.display()))?;
     let cfg = cfg.check().map_err(with_flag_names)?;
     let _lock = RunLock::acquire(&args.out, None)?;
-    println!("hierax cohort merge: {} units in {}", run.subjects.len(), args.out.display());
-    println!("  units         {} succeeded, {} failed", run.records().len(), run.n_failed());
+    println!("hierax cohort merge: {} units in {}", run.units.len(), args.out.display());
+    println!("  units         {} succeeded, {} failed", run.n_succeeded(), run.n_failed());
     let kinds = covariate_kinds(&args.covariates, &args.categorical);
     finish(
         &args.out,

@@ -93,6 +93,38 @@ impl Patterns {
         Ok(())
     }
 
+    /// Unit `p`'s files under `root`.
+    fn files(&self, root: &Path, p: &Participant) -> UnitFiles {
+        let spec = |pattern: &str| InputSpec::new(self.resolve_for(root, pattern, p), None);
+        UnitFiles {
+            connectome: spec(&self.connectome),
+            series: spec(&self.series),
+            confounds: self.confounds.as_deref().map(spec),
+        }
+    }
+
+    /// The first of unit `p`'s files that does not exist, as a reason.
+    fn first_missing(&self, root: &Path, p: &Participant) -> Option<String> {
+        [
+            ("connectome", Some(&self.connectome)),
+            ("series", Some(&self.series)),
+            ("confounds", self.confounds.as_ref()),
+        ]
+        .into_iter()
+        .filter_map(|(role, pattern)| pattern.map(|pat| (role, pat)))
+        .find_map(|(role, pattern)| {
+            let path = self.resolve_for(root, pattern, p);
+            (!path.is_file())
+                .then(|| format!("{role}: {}: no such file (pattern `{pattern}`)", path.display()))
+        })
+    }
+
+    fn resolve_for(&self, root: &Path, pattern: &str, p: &Participant) -> PathBuf {
+        let label = &p.subject_id()[4..];
+        let session = p.session_id.as_deref().map(|s| &s[4..]);
+        self.resolve(root, pattern, label, session)
+    }
+
     fn resolve(&self, root: &Path, pattern: &str, subject: &str, session: Option<&str>) -> PathBuf {
         let mut p = pattern.replace("{subject}", subject);
         if let Some(s) = session {
@@ -115,41 +147,82 @@ pub enum CovariateKind {
     Categorical,
 }
 
-/// One unit (subject, or subject × session) and its inputs.
+/// One unit (subject, or subject × session). Its input paths are not
+/// stored but resolved from the patterns when the unit runs
+/// ([`Manifest::inputs`]), and its covariates are kept as one text cell per
+/// column of [`Manifest::covariate_names`], so a cohort of 10,000 units
+/// holds about 150 bytes per unit.
 #[derive(Clone, Debug, Serialize)]
 pub struct Participant {
     /// `sub-<label>` or `sub-<label>_ses-<label>`: the unit's name, folder and file prefix.
     pub subject: String,
-    /// `sub-<label>`.
-    pub subject_id: String,
     /// `ses-<label>`, when the cohort has sessions.
     pub session_id: Option<String>,
+    /// One cell per [`Manifest::covariate_names`] column (`None` where the
+    /// unit's tables lack that column).
+    covariates: Box<[Option<Box<str>>]>,
+    /// Why the unit cannot run (a missing file), if so.
+    pub missing: Option<String>,
+}
+
+impl Participant {
+    /// `sub-<label>`: the unit's name without its session.
+    pub fn subject_id(&self) -> &str {
+        self.subject.split("_ses-").next().unwrap_or(&self.subject)
+    }
+}
+
+/// A cohort: its folder, patterns and units, sorted by name.
+#[derive(Clone, Debug, Serialize)]
+pub struct Manifest {
+    /// The cohort folder.
+    pub root: PathBuf,
+    /// Where each unit's files are.
+    pub patterns: Patterns,
+    /// Every covariate column of the participants (and sessions) tables, sorted.
+    pub covariate_names: Vec<String>,
+    /// Units sorted by name (the order shards slice).
+    pub participants: Vec<Participant>,
+}
+
+/// A unit's input files: connectome, series and (if any) confounds.
+#[derive(Clone, Debug, PartialEq, Eq)]
+pub struct UnitFiles {
     /// Structural connectome.
     pub connectome: InputSpec,
     /// Resting-state series.
     pub series: InputSpec,
     /// Confounds table, if any.
     pub confounds: Option<InputSpec>,
-    /// Every other column of the participants (and sessions) table, as text.
-    pub covariates: BTreeMap<String, String>,
-    /// Why the unit cannot run (a missing file), if so.
-    pub missing: Option<String>,
 }
 
-impl Participant {
-    /// The unit's age in years, if the tables have a numeric `age`.
-    pub fn age(&self) -> Option<f64> {
-        self.covariates.get("age").and_then(|a| a.trim().parse().ok())
+/// Column names in order of first appearance, with their indices.
+#[derive(Default)]
+struct Columns {
+    names: Vec<String>,
+    index: std::collections::HashMap<String, usize>,
+}
+
+impl Columns {
+    fn index(&mut self, name: &str) -> usize {
+        if let Some(&j) = self.index.get(name) {
+            return j;
+        }
+        self.names.push(name.to_string());
+        self.index.insert(name.to_string(), self.names.len() - 1);
+        self.names.len() - 1
     }
-}
 
-/// A cohort: its folder and units, sorted by name.
-#[derive(Clone, Debug, Serialize)]
-pub struct Manifest {
-    /// The cohort folder.
-    pub root: PathBuf,
-    /// Units sorted by name (the order shards slice).
-    pub participants: Vec<Participant>,
+    fn len(&self) -> usize {
+        self.names.len()
+    }
+
+    /// The names sorted, and for each sorted position its first-appearance index.
+    fn sorted(self) -> (Vec<String>, Vec<usize>) {
+        let mut order: Vec<usize> = (0..self.names.len()).collect();
+        order.sort_by(|&a, &b| self.names[a].cmp(&self.names[b]));
+        (order.iter().map(|&j| self.names[j].clone()).collect(), order)
+    }
 }
 
 /// A table row: its 1-based line and its cells.
@@ -201,66 +274,97 @@ impl Manifest {
         let table = root.join("participants.tsv");
         let (header, rows) = read_tsv(&table)?;
         let id_col = id_column(&table, &header, "participant_id")?;
+        // Covariate columns in order of first appearance; sorted at the end.
+        let mut names = Columns::default();
+        let mut seen = std::collections::HashSet::new();
         let mut participants: Vec<Participant> = Vec::new();
         for (line, cells) in rows {
             let subject = cells[id_col].clone();
             let bad = |reason: String| CohortError::BadRow { path: table.clone(), line, reason };
             check_entity("sub", &subject).map_err(|e| bad(format!("participant_id: {e}")))?;
-            let label = &subject[4..];
-            if participants.iter().any(|p| p.subject_id == subject) {
+            if !seen.insert(subject.clone()) {
                 return Err(bad(format!("participant `{subject}` is listed twice")));
             }
-            let base: BTreeMap<String, String> = header
+            let base: Vec<(usize, &str)> = header
                 .iter()
                 .zip(&cells)
                 .enumerate()
                 .filter(|(j, _)| *j != id_col)
-                .map(|(_, (h, c))| (h.clone(), c.clone()))
+                .map(|(_, (h, c))| (names.index(h), c.as_str()))
                 .collect();
-            let sessions: Vec<(Option<String>, BTreeMap<String, String>)> = if patterns.has_sessions() {
+            // Each unit: its session (if any) and its extra cells by column index.
+            type Unit = (Option<String>, Vec<(usize, String)>);
+            let units: Vec<Unit> = if patterns.has_sessions() {
                 sessions_of(root, &subject)?
                     .into_iter()
                     .map(|(ses, extra)| {
-                        let mut cov = base.clone();
-                        cov.extend(extra);
-                        (Some(ses), cov)
+                        (Some(ses), extra.into_iter().map(|(h, c)| (names.index(&h), c)).collect())
                     })
                     .collect()
             } else {
-                vec![(None, base.clone())]
+                vec![(None, Vec::new())]
             };
-            for (session_id, covariates) in sessions {
-                let ses_label = session_id.as_deref().map(|s| &s[4..]);
+            for (session_id, extra) in units {
                 let name = match &session_id {
                     Some(s) => format!("{subject}_{s}"),
                     None => subject.clone(),
                 };
-                let mut missing = None;
-                let mut locate = |role: &'static str, pattern: &str| -> InputSpec {
-                    let path = patterns.resolve(root, pattern, label, ses_label);
-                    if !path.is_file() && missing.is_none() {
-                        missing =
-                            Some(format!("{role}: {}: no such file (pattern `{pattern}`)", path.display()));
-                    }
-                    InputSpec::new(path, None)
-                };
-                let connectome = locate("connectome", &patterns.connectome);
-                let series = locate("series", &patterns.series);
-                let confounds = patterns.confounds.as_deref().map(|p| locate("confounds", p));
-                participants.push(Participant {
+                let mut cov: Vec<Option<Box<str>>> = vec![None; names.len()];
+                for &(j, c) in &base {
+                    cov[j] = Some(c.into());
+                }
+                for (j, c) in extra {
+                    cov[j] = Some(c.into());
+                }
+                let mut unit = Participant {
                     subject: name,
-                    subject_id: subject.clone(),
                     session_id,
-                    connectome,
-                    series,
-                    confounds,
-                    covariates,
-                    missing,
-                });
+                    covariates: cov.into_boxed_slice(),
+                    missing: None,
+                };
+                unit.missing = patterns.first_missing(root, &unit);
+                participants.push(unit);
             }
         }
+        let (covariate_names, order) = names.sorted();
+        for p in &mut participants {
+            let cells = std::mem::take(&mut p.covariates);
+            p.covariates = order.iter().map(|&j| cells.get(j).cloned().flatten()).collect();
+        }
         participants.sort_by(|a, b| a.subject.cmp(&b.subject));
-        Ok(Manifest { root: root.to_path_buf(), participants })
+        Ok(Manifest { root: root.to_path_buf(), patterns: patterns.clone(), covariate_names, participants })
+    }
+
+    /// Unit `p`'s input files, resolved from the patterns.
+    pub fn inputs(&self, p: &Participant) -> UnitFiles {
+        self.patterns.files(&self.root, p)
+    }
+
+    /// Unit `p`'s covariate `name` as text, if its tables have that column.
+    pub fn covariate<'a>(&self, p: &'a Participant, name: &str) -> Option<&'a str> {
+        let j = self.covariate_names.binary_search_by(|n| n.as_str().cmp(name)).ok()?;
+        p.covariates.get(j).and_then(|c| c.as_deref())
+    }
+
+    /// Every covariate of unit `p` (its tables' columns), plus
+    /// `participant_id` and `session_id` for a session unit.
+    pub fn covariates_of(&self, p: &Participant) -> BTreeMap<String, String> {
+        let mut out: BTreeMap<String, String> = self
+            .covariate_names
+            .iter()
+            .zip(p.covariates.iter())
+            .filter_map(|(n, c)| c.as_ref().map(|c| (n.clone(), c.to_string())))
+            .collect();
+        if let Some(s) = &p.session_id {
+            out.insert("participant_id".into(), p.subject_id().to_string());
+            out.insert("session_id".into(), s.clone());
+        }
+        out
+    }
+
+    /// Unit `p`'s age in years, if its tables have a numeric `age`.
+    pub fn age(&self, p: &Participant) -> Option<f64> {
+        self.covariate(p, "age").and_then(|a| a.trim().parse().ok())
     }
 
     /// Check the covariates the models use, before any unit runs: each is a
@@ -273,17 +377,13 @@ impl Manifest {
     /// [`CohortError::Covariate`] naming the column, the unit and the value.
     pub fn check_covariates(&self, covariates: &[(&str, CovariateKind)]) -> Result<(), CohortError> {
         for &(name, kind) in covariates {
-            let present = self.participants.iter().any(|p| p.covariates.contains_key(name));
+            let present = self.participants.iter().any(|p| self.covariate(p, name).is_some());
             if !present && !self.participants.is_empty() {
-                let mut have: Vec<&String> =
-                    self.participants.iter().flat_map(|p| p.covariates.keys()).collect();
-                have.sort();
-                have.dedup();
                 return Err(CohortError::Covariate {
                     column: name.into(),
                     reason: format!(
                         "is not a column of participants.tsv (or the sessions tables); found: {}",
-                        have.iter().map(|s| s.as_str()).collect::<Vec<_>>().join(", ")
+                        self.covariate_names.join(", ")
                     ),
                 });
             }
@@ -291,7 +391,7 @@ impl Manifest {
                 continue;
             }
             for p in &self.participants {
-                let v = p.covariates.get(name).map(|s| s.trim()).unwrap_or("");
+                let v = self.covariate(p, name).map(str::trim).unwrap_or("");
                 if v.is_empty() || v == "n/a" {
                     continue;
                 }
@@ -328,7 +428,12 @@ impl Manifest {
             .filter(|(i, _)| i % count == index - 1)
             .map(|(_, p)| p.clone())
             .collect();
-        Ok(Manifest { root: self.root.clone(), participants })
+        Ok(Manifest {
+            root: self.root.clone(),
+            patterns: self.patterns.clone(),
+            covariate_names: self.covariate_names.clone(),
+            participants,
+        })
     }
 }
 
@@ -400,7 +505,9 @@ mod tests {
         assert!(m.participants[0].missing.is_none());
         let miss = m.participants[1].missing.as_deref().unwrap();
         assert!(miss.starts_with("series: ") && miss.contains("sub-02_bold.npy: no such file"), "{miss}");
-        assert_eq!(m.participants[1].age(), Some(9.5));
+        assert_eq!(m.age(&m.participants[1]), Some(9.5));
+        assert_eq!(m.covariates_of(&m.participants[0])["sex"], "M");
+        assert_eq!(m.inputs(&m.participants[0]).series.path, root.join("sub-01/sub-01_bold.npy"));
     }
 
     #[test]
@@ -420,8 +527,12 @@ mod tests {
         let m = Manifest::discover(root, &patterns).unwrap();
         let names: Vec<&str> = m.participants.iter().map(|p| p.subject.as_str()).collect();
         assert_eq!(names, ["sub-01_ses-1", "sub-01_ses-2"]);
-        assert_eq!(m.participants[1].age(), Some(11.3));
-        assert_eq!(m.participants[1].covariates["sex"], "F");
+        assert_eq!(m.age(&m.participants[1]), Some(11.3));
+        assert_eq!(m.covariate(&m.participants[1], "sex"), Some("F"));
+        let cov = m.covariates_of(&m.participants[1]);
+        assert_eq!((cov["participant_id"].as_str(), cov["session_id"].as_str()), ("sub-01", "ses-2"));
+        assert_eq!(m.covariate_names, ["age", "sex"]);
+        assert_eq!(m.inputs(&m.participants[1]).series.path, root.join("sub-01/ses-2/b.npy"));
     }
 
     #[test]

@@ -4,7 +4,7 @@
 
 use super::{CohortError, CohortRun, RunLock};
 use crate::export::folder::Marker;
-use crate::subject::{SubjectRecord, SubjectStatus};
+use crate::subject::{read_record, UnitStatus};
 use serde::{Deserialize, Serialize};
 use std::path::Path;
 
@@ -18,8 +18,22 @@ pub struct ShardLog {
     pub version: String,
     /// The run's parameters.
     pub parameters: serde_json::Value,
-    /// Each unit's status.
-    pub subjects: Vec<SubjectStatus>,
+    /// Each unit's name and, when it failed, why.
+    pub units: Vec<UnitStatus>,
+}
+
+/// What merge checks of a unit's summary.
+#[derive(Deserialize)]
+struct UnitProvenance {
+    provenance: ProvenanceKeys,
+}
+
+#[derive(Deserialize)]
+struct ProvenanceKeys {
+    #[serde(default)]
+    version: String,
+    #[serde(default)]
+    parameters: serde_json::Value,
 }
 
 /// The file name of shard `index` of `count`'s log.
@@ -106,7 +120,8 @@ pub fn gather(out: &Path) -> Result<(CohortRun, serde_json::Value), CohortError>
             }
         }
     };
-    let mut statuses: std::collections::BTreeMap<String, SubjectStatus> = Default::default();
+    let mut statuses: std::collections::BTreeMap<String, UnitStatus> = Default::default();
+    let mut covariates = std::collections::BTreeSet::new();
     let entries = std::fs::read_dir(out).map_err(|e| crate::io::IoError::os(out, "cannot list", e))?;
     let mut names: Vec<(String, std::path::PathBuf)> =
         entries.flatten().map(|e| (e.file_name().to_string_lossy().into_owned(), e.path())).collect();
@@ -118,7 +133,7 @@ pub fn gather(out: &Path) -> Result<(CohortRun, serde_json::Value), CohortError>
             let log: ShardLog = serde_json::from_str(&text)
                 .map_err(|e| crate::io::IoError::format(path, format!("not a shard log: {e}")))?;
             check(&format!("shard {}", log.shard), &log.version, &log.parameters)?;
-            for s in log.subjects.into_iter().filter(|s| s.record.is_none()) {
+            for s in log.units.into_iter().filter(|s| !s.succeeded()) {
                 statuses.insert(s.subject.clone(), s);
             }
         }
@@ -131,14 +146,14 @@ pub fn gather(out: &Path) -> Result<(CohortRun, serde_json::Value), CohortError>
         let summary = path.join(format!("{name}_summary.json"));
         let text = std::fs::read_to_string(&summary)
             .map_err(|e| crate::io::IoError::os(&summary, "cannot read", e))?;
-        let v: serde_json::Value = serde_json::from_str(&text)
+        let v: UnitProvenance = serde_json::from_str(&text)
             .map_err(|e| crate::io::IoError::format(&summary, format!("not a hierax summary: {e}")))?;
-        check(name, v["provenance"]["version"].as_str().unwrap_or(""), &v["provenance"]["parameters"])?;
-        let mut record: SubjectRecord = serde_json::from_value(v["record"].clone())
-            .map_err(|e| crate::io::IoError::format(&summary, format!("no subject record: {e}")))?;
-        record.output = path.clone();
-        statuses
-            .insert(name.clone(), SubjectStatus { subject: name.clone(), record: Some(record), error: None });
+        check(name, &v.provenance.version, &v.provenance.parameters)?;
+        // The record is read here only for its covariate names; the cohort
+        // tables read it again, one unit at a time.
+        let record = read_record(path, name)?;
+        covariates.extend(record.covariates.into_keys());
+        statuses.insert(name.clone(), UnitStatus { subject: name.clone(), error: None });
     }
     let Some((_, _, params)) = first else {
         return Err(crate::io::IoError::format(
@@ -147,5 +162,11 @@ pub fn gather(out: &Path) -> Result<(CohortRun, serde_json::Value), CohortError>
         )
         .into());
     };
-    Ok((CohortRun { subjects: statuses.into_values().collect(), resumed: 0 }, params))
+    let run = CohortRun {
+        out: out.to_path_buf(),
+        units: statuses.into_values().collect(),
+        covariate_names: covariates.into_iter().collect(),
+        resumed: 0,
+    };
+    Ok((run, params))
 }

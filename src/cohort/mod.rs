@@ -19,9 +19,8 @@ pub use error::CohortError;
 pub use manifest::{CovariateKind, Manifest, Participant, Patterns};
 pub use run::{run_cohort, CohortRun, RunLock, RunOptions, SharedInputs};
 
-use crate::export::cohort::{GroupTest, OutcomeModel};
+use crate::export::cohort::{CohortValues, GroupTest, OutcomeModel};
 use crate::subject::{Outcome, OutcomeRole, ValidSubjectConfig};
-use std::path::Path;
 
 /// Sign flips of the cohort tests against 0: 9,999 gives p-values down to
 /// 1e-4 (common practice, no source).
@@ -38,58 +37,66 @@ pub struct CohortAnalysis {
     pub models: Vec<OutcomeModel>,
 }
 
-/// Test and model every finding across the subjects of `run`.
+/// Test and model every finding across the units of `values`.
 ///
 /// # Errors
 /// [`CohortError::Stats`] when the FDR step fails.
 pub fn analyse_cohort(
-    run: &CohortRun,
+    values: &CohortValues,
     cfg: &ValidSubjectConfig,
     covariates: &[&str],
 ) -> Result<CohortAnalysis, CohortError> {
     let roles = cfg.outcome_roles();
     let findings = model::findings(&roles);
-    let records = run.records();
-    let tests = model::group_tests(&records, &findings, SIGN_FLIPS, cfg.params().seed)
+    let tests = model::group_tests(values, &findings, SIGN_FLIPS, cfg.params().seed)
         .map_err(|source| CohortError::Stats { what: "cohort tests", source })?;
-    let models = model::fit_models(&records, &findings, covariates);
+    let models = model::fit_models(values, &findings, covariates);
     Ok(CohortAnalysis { roles, tests, models })
 }
 
-/// Write the cohort files (`cohort.csv`, `run_log.csv`, `group_tests.csv`,
-/// `age_models.csv`, `cohort.json`) and `report.html` into `out`.
+/// Finish a cohort: write `cohort.csv` and `run_log.csv` from the units'
+/// folders one record at a time (keeping only [`CohortValues`] in memory),
+/// test and model every finding, and write `group_tests.csv`,
+/// `age_models.csv`, `cohort.json` and `report.html` into `run.out`.
 ///
 /// # Errors
-/// [`CohortError::Io`] when a file cannot be written.
-pub fn write_cohort(
-    out: &Path,
+/// [`CohortError::Io`] when a record cannot be read or a file cannot be
+/// written; [`CohortError::Stats`] when the FDR step fails.
+pub fn finish_cohort(
     run: &CohortRun,
     cfg: &ValidSubjectConfig,
-    analysis: &CohortAnalysis,
+    covariates: &[&str],
     title: &str,
     intro: &str,
-) -> Result<(), CohortError> {
+) -> Result<(CohortValues, CohortAnalysis), CohortError> {
+    let mut keep: Vec<&str> = covariates.to_vec();
+    keep.push("age");
+    let mut values = CohortValues::new(&keep);
+    let read = |unit: &str| crate::subject::read_record(&run.out.join(unit), unit);
+    crate::export::cohort::write_unit_tables(&run.out, &run.units, &run.covariate_names, &read, &mut values)?;
+    let analysis = analyse_cohort(&values, cfg, covariates)?;
     let params = serde_json::to_value(cfg.params()).unwrap_or_default();
     crate::export::cohort::write_cohort_files(
-        out,
+        &run.out,
         &params,
         &analysis.roles,
-        &run.subjects,
+        &run.units,
         &analysis.tests,
         &analysis.models,
     )?;
-    let example = run.records().first().and_then(|r| {
+    let example = values.sample.first().and_then(|r| {
         crate::export::subject::read_asymmetry(&r.output, &r.subject).ok().map(|m| (r.subject.clone(), m))
     });
     let html = crate::report::cohort::cohort_report(&crate::report::cohort::CohortReportInput {
         title,
         intro,
-        subjects: &run.subjects,
+        units: &run.units,
+        values: &values,
         roles: &analysis.roles,
         tests: &analysis.tests,
         models: &analysis.models,
         example,
     });
-    crate::io::atomic::write_bytes_atomic(&out.join("report.html"), html.as_bytes())?;
-    Ok(())
+    crate::io::atomic::write_bytes_atomic(&run.out.join("report.html"), html.as_bytes())?;
+    Ok((values, analysis))
 }

@@ -1,7 +1,8 @@
 //! Running the per-subject job over a cohort: in parallel on one rayon pool,
 //! fault-tolerant (a failing unit is recorded and the others go on), each
-//! unit written as soon as it is done with only a compact record kept in
-//! memory, restartable (a unit whose folder was made with the same
+//! unit written as soon as it is done with only its name and any failure
+//! kept in memory (its record is read back from its folder when the cohort
+//! tables are written), restartable (a unit whose folder was made with the same
 //! parameters from unchanged inputs is not recomputed), and guarded by a lock
 //! so that two runs never share an output folder.
 
@@ -11,7 +12,8 @@ use crate::export::folder::{Marker, MARKER};
 use crate::io::provenance::sha256_file;
 use crate::io::InputSpec;
 use crate::subject::{
-    analyse_subject, LoadedSubject, SubjectInputs, SubjectRecord, SubjectStatus, ValidSubjectConfig,
+    analyse_subject, read_record, LoadedSubject, SubjectInputs, SubjectRecord, SubjectStatus, UnitStatus,
+    ValidSubjectConfig,
 };
 use rayon::prelude::*;
 use serde::Serialize;
@@ -40,30 +42,69 @@ pub struct RunOptions<'a> {
     pub command: &'a str,
 }
 
-/// The outcome of a cohort run, in unit-name order.
+/// The outcome of a cohort run, in unit-name order: each unit's name and
+/// failure, never its results (those are read back from `out/<unit>/` when
+/// the cohort tables are written), so memory stays flat however large the
+/// cohort.
 #[derive(Clone, Debug, Serialize)]
 pub struct CohortRun {
+    /// The output folder holding one folder per unit that succeeded.
+    pub out: PathBuf,
     /// One status per unit.
-    pub subjects: Vec<SubjectStatus>,
+    pub units: Vec<UnitStatus>,
+    /// Every covariate the succeeded units' records carry, sorted.
+    pub covariate_names: Vec<String>,
     /// Units kept from an earlier run (not recomputed).
     pub resumed: usize,
 }
 
 impl CohortRun {
-    /// Records of the units that succeeded.
-    pub fn records(&self) -> Vec<&SubjectRecord> {
-        self.subjects.iter().filter_map(|s| s.record.as_ref()).collect()
+    /// Number of units that succeeded.
+    pub fn n_succeeded(&self) -> usize {
+        self.units.iter().filter(|s| s.succeeded()).count()
     }
 
     /// Number of failed units.
     pub fn n_failed(&self) -> usize {
-        self.subjects.iter().filter(|s| s.record.is_none()).count()
+        self.units.len() - self.n_succeeded()
+    }
+
+    /// The record of unit `unit`, read from its folder.
+    ///
+    /// # Errors
+    /// [`CohortError::Io`] when its summary cannot be read.
+    pub fn record(&self, unit: &str) -> Result<SubjectRecord, CohortError> {
+        Ok(read_record(&self.out.join(unit), unit)?)
+    }
+
+    /// The records of the units that succeeded, in name order, each read
+    /// from its folder when the iterator reaches it.
+    pub fn records(&self) -> impl Iterator<Item = Result<SubjectRecord, CohortError>> + '_ {
+        self.units.iter().filter(|u| u.succeeded()).map(|u| self.record(&u.subject))
     }
 }
 
 /// The parameters digest that identifies a run's settings.
 pub fn parameters_marker(cfg: &ValidSubjectConfig, kind: &str) -> Marker {
     Marker::new(kind, &serde_json::to_value(cfg.params()).unwrap_or_default(), &[])
+}
+
+/// What resuming reads of a unit's summary.
+#[derive(serde::Deserialize)]
+struct Reusable {
+    provenance: ReusableProvenance,
+    record: SubjectRecord,
+}
+
+#[derive(serde::Deserialize)]
+struct ReusableProvenance {
+    inputs: Vec<ReusableInput>,
+}
+
+#[derive(serde::Deserialize)]
+struct ReusableInput {
+    spec: String,
+    sha256: String,
 }
 
 /// The record of a unit folder written earlier, if the folder is complete,
@@ -78,15 +119,15 @@ pub fn reusable(dir: &Path, unit: &str, cfg: &ValidSubjectConfig) -> Option<Subj
         return None;
     }
     let text = std::fs::read_to_string(dir.join(format!("{unit}_summary.json"))).ok()?;
-    let v: serde_json::Value = serde_json::from_str(&text).ok()?;
-    for input in v["provenance"]["inputs"].as_array()? {
-        let spec = InputSpec::parse(input["spec"].as_str()?).ok()?;
+    let v: Reusable = serde_json::from_str(&text).ok()?;
+    for input in &v.provenance.inputs {
+        let spec = InputSpec::parse(&input.spec).ok()?;
         let (digest, _) = sha256_file(&spec.path).ok()?;
-        if digest != input["sha256"].as_str()? {
+        if digest != input.sha256 {
             return None;
         }
     }
-    let mut record: SubjectRecord = serde_json::from_value(v["record"].clone()).ok()?;
+    let mut record = v.record;
     record.output = dir.to_path_buf();
     Some(record)
 }
@@ -99,23 +140,19 @@ fn remove_stale(dir: &Path) {
     }
 }
 
-/// The inputs of unit `p`.
-pub fn unit_inputs(p: &Participant, shared: &SharedInputs) -> SubjectInputs {
-    let mut covariates = p.covariates.clone();
-    if let Some(s) = &p.session_id {
-        covariates.insert("participant_id".into(), p.subject_id.clone());
-        covariates.insert("session_id".into(), s.clone());
-    }
+/// The inputs of unit `p` of `manifest`.
+pub fn unit_inputs(manifest: &Manifest, p: &Participant, shared: &SharedInputs) -> SubjectInputs {
+    let files = manifest.inputs(p);
     SubjectInputs {
         subject: p.subject.clone(),
-        connectome: p.connectome.clone(),
-        series: p.series.clone(),
+        connectome: files.connectome,
+        series: files.series,
         map: shared.map.clone(),
-        confounds: p.confounds.clone(),
+        confounds: files.confounds,
         distances: shared.distances.clone(),
         sphere: shared.sphere.clone(),
         hemisphere: shared.hemisphere.clone(),
-        covariates,
+        covariates: manifest.covariates_of(p),
     }
 }
 
@@ -157,7 +194,8 @@ pub fn run_cohort(
     progress: &(dyn Fn(&SubjectStatus) + Sync),
 ) -> Result<CohortRun, CohortError> {
     remove_dead_staging(out);
-    let done: Vec<(SubjectStatus, bool)> = manifest
+    let covariates = std::sync::Mutex::new(std::collections::BTreeSet::<String>::new());
+    let done: Vec<(UnitStatus, bool)> = manifest
         .participants
         .par_iter()
         .map(|p| {
@@ -175,14 +213,28 @@ pub fn run_cohort(
             } else if let Some(record) = opts.resume.then(|| reusable(&dir, &p.subject, cfg)).flatten() {
                 (SubjectStatus { subject: p.subject.clone(), record: Some(record), error: None }, true)
             } else {
-                (run_one(&unit_inputs(p, shared), cfg, out, opts.command), false)
+                (run_one(&unit_inputs(manifest, p, shared), cfg, out, opts.command), false)
             };
             progress(&status);
-            (status, kept)
+            if let Some(r) = &status.record {
+                let mut seen = covariates.lock().unwrap_or_else(|e| e.into_inner());
+                for k in r.covariates.keys() {
+                    if !seen.contains(k) {
+                        seen.insert(k.clone());
+                    }
+                }
+            }
+            // Only the name and any failure stay in memory; the record is on disk.
+            (UnitStatus::from(&status), kept)
         })
         .collect();
     let resumed = done.iter().filter(|(_, k)| *k).count();
-    Ok(CohortRun { subjects: done.into_iter().map(|(s, _)| s).collect(), resumed })
+    Ok(CohortRun {
+        out: out.to_path_buf(),
+        units: done.into_iter().map(|(s, _)| s).collect(),
+        covariate_names: covariates.into_inner().unwrap_or_else(|e| e.into_inner()).into_iter().collect(),
+        resumed,
+    })
 }
 
 /// Whether process `pid` is alive on this host.

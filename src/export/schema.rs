@@ -380,6 +380,18 @@ pub const ALL_TABLES: [&TableDef; 19] = [
     &AGE_MODELS,
 ];
 
+/// Check a header written row by row against `def`, by the same rule as
+/// [`TableBuilder`].
+///
+/// # Panics
+/// When a name is not the next declared column (a programming error).
+pub fn check_header(def: &'static TableDef, names: &[String]) {
+    let mut b = TableBuilder::new(def);
+    for n in names {
+        b = b.col(n, Column::Str(Vec::new()));
+    }
+}
+
 /// Builds a [`Table`] column by column, checking each name against a
 /// [`TableDef`]. A family column (`{…}` in the definition) accepts any number
 /// of columns, including none.

@@ -3,9 +3,9 @@
 
 use super::html::Report;
 use super::svg;
-use crate::export::cohort::{GroupTest, OutcomeModel};
+use crate::export::cohort::{CohortValues, GroupTest, OutcomeModel};
 use crate::stats::regression::least_squares_line;
-use crate::subject::{Outcome, OutcomeRole, SubjectStatus};
+use crate::subject::{Outcome, OutcomeRole, UnitStatus};
 use ndarray::Array2;
 
 fn fmt(v: f64) -> String {
@@ -22,8 +22,10 @@ pub struct CohortReportInput<'a> {
     pub title: &'a str,
     /// First paragraph.
     pub intro: &'a str,
-    /// Every subject's status.
-    pub subjects: &'a [SubjectStatus],
+    /// Every unit's status.
+    pub units: &'a [UnitStatus],
+    /// The values of the units that succeeded.
+    pub values: &'a CohortValues,
     /// Each outcome's role under the run's settings.
     pub roles: &'a [(Outcome, OutcomeRole)],
     /// Cohort tests against 0.
@@ -34,25 +36,48 @@ pub struct CohortReportInput<'a> {
     pub example: Option<(String, Array2<f64>)>,
 }
 
+/// Rows of a per-unit table shown in the report; cohort.csv and run_log.csv
+/// have every unit (our choice, to keep the page readable at any size).
+pub const TABLE_ROWS: usize = CohortValues::SAMPLE;
+
+/// Points drawn per scatter plot; a larger cohort is drawn as an evenly
+/// spaced subsample in name order, and the line is fitted on every unit (our
+/// choice: the page stays a few megabytes at any cohort size).
+pub const SCATTER_POINTS: usize = 2_000;
+
+/// Every `step`-th element, with `step` chosen so at most `max` remain.
+fn thin(v: &[f64], max: usize) -> Vec<f64> {
+    let step = v.len().div_ceil(max.max(1)).max(1);
+    v.iter().step_by(step).copied().collect()
+}
+
 /// Build the cohort report.
 pub fn cohort_report(x: &CohortReportInput<'_>) -> String {
-    let reps: Vec<_> = x.subjects.iter().filter_map(|s| s.record.as_ref()).collect();
+    let n_ok = x.values.len();
     let mut r = Report::new(x.title);
     r.paragraph(x.intro);
     r.heading("Run");
     r.paragraph(&format!(
-        "{} subjects: {} succeeded, {} failed. Failures are listed in run_log.csv; every successful subject has its own folder with an HDF5 file, CSV tables and a JSON summary. docs/outputs.md in the hierax sources defines every column.",
-        x.subjects.len(),
-        reps.len(),
-        x.subjects.len() - reps.len()
+        "{} units: {} succeeded, {} failed. Failures are listed in run_log.csv; every unit that succeeded has its own folder with an HDF5 file, CSV tables and a JSON summary. docs/outputs.md in the hierax sources defines every column.",
+        x.units.len(),
+        n_ok,
+        x.units.len() - n_ok
     ));
     let failures: Vec<Vec<String>> = x
-        .subjects
+        .units
         .iter()
         .filter_map(|s| s.error.as_ref().map(|e| vec![s.subject.clone(), e.clone()]))
+        .take(TABLE_ROWS)
         .collect();
     if !failures.is_empty() {
-        r.table(&["subject", "error"], &failures);
+        let n_failed = x.units.len() - n_ok;
+        if n_failed > failures.len() {
+            r.paragraph(&format!(
+                "The first {} of {n_failed} failures; run_log.csv lists them all.",
+                failures.len()
+            ));
+        }
+        r.table(&["unit", "error"], &failures);
     }
 
     r.heading("Outcomes");
@@ -76,23 +101,35 @@ pub fn cohort_report(x: &CohortReportInput<'_>) -> String {
     }
 
     r.heading("Per-subject relations");
-    let age: Vec<f64> = reps
-        .iter()
-        .map(|x| x.covariates.get("age").and_then(|a| a.parse().ok()).unwrap_or(f64::NAN))
-        .collect();
+    let age: Vec<f64> = x.values.covariate("age").map_or_else(
+        || vec![f64::NAN; n_ok],
+        |c| c.iter().map(|a| a.as_deref().and_then(|a| a.trim().parse().ok()).unwrap_or(f64::NAN)).collect(),
+    );
+    let thinned = n_ok > SCATTER_POINTS;
     for (o, role) in x.roles {
         if !role.is_finding() {
             continue;
         }
-        let y: Vec<f64> = reps.iter().map(|x| x.outcome(*o)).collect();
+        let y = x.values.outcome(*o);
         let line = least_squares_line(&age, &y).ok().map(|l| (l.intercept, l.slope));
+        let shown = if thinned {
+            format!(
+                "An evenly spaced {} of the {n_ok} units (in name order) are drawn; the least-squares line on age is fitted on all of them.",
+                thin(&y, SCATTER_POINTS).len()
+            )
+        } else {
+            "One point per unit, with the least-squares line on age.".to_string()
+        };
         r.figure(
-            &svg::scatter(o.name(), "age (years)", o.name(), &age, &y, line),
-            &format!(
-                "{}: {}. One point per subject, with the least-squares line on age.",
+            &svg::scatter(
                 o.name(),
-                o.description()
+                "age (years)",
+                o.name(),
+                &thin(&age, SCATTER_POINTS),
+                &thin(&y, SCATTER_POINTS),
+                line,
             ),
+            &format!("{}: {}. {shown}", o.name(), o.description()),
         );
     }
 
@@ -149,6 +186,13 @@ pub fn cohort_report(x: &CohortReportInput<'_>) -> String {
     r.table(&["outcome", "term", "estimate", "SE", "t", "p", "n", "R²"], &rows);
 
     r.heading("Per-subject summary");
+    let reps = &x.values.sample;
+    if n_ok > reps.len() {
+        r.paragraph(&format!(
+            "The first {} of {n_ok} units in name order; cohort.csv has them all.",
+            reps.len()
+        ));
+    }
     let test_keys: Vec<String> =
         reps.first().map(|x| x.tests.iter().map(|t| t.0.clone()).collect()).unwrap_or_default();
     let mut header: Vec<String> =
@@ -156,7 +200,7 @@ pub fn cohort_report(x: &CohortReportInput<'_>) -> String {
     header.extend(test_keys.iter().map(|k| format!("p {k}")));
     header.push("max terminal error".into());
     let mut rows = Vec::new();
-    for x in &reps {
+    for x in reps {
         let mut row = vec![
             x.subject.clone(),
             x.covariates.get("age").cloned().unwrap_or_default(),

@@ -1,12 +1,14 @@
-//! A compact record of one subject's result: what the cohort layer keeps in
-//! memory (a few hundred bytes per subject, so memory stays flat however
-//! large the cohort), built from a [`SubjectResult`] or read back from a
-//! written summary.
+//! A compact record of one subject's result: what the cohort tables need,
+//! built from a [`SubjectResult`], stored in the unit's summary JSON and read
+//! back from it one unit at a time when the cohort tables are written (a
+//! cohort keeps only each unit's [`UnitStatus`] in memory, so memory stays
+//! flat however large the cohort).
 
 use super::{Outcome, SubjectResult};
+use crate::io::IoError;
 use serde::{Deserialize, Serialize};
 use std::collections::BTreeMap;
-use std::path::PathBuf;
+use std::path::{Path, PathBuf};
 
 /// What the cohort tables need of one subject.
 #[derive(Clone, Debug, Serialize, Deserialize, PartialEq)]
@@ -78,4 +80,51 @@ pub struct SubjectStatus {
     pub record: Option<SubjectRecord>,
     /// The one-line reason when it failed.
     pub error: Option<String>,
+}
+
+/// One unit of a cohort run as a cohort keeps it in memory: its name and,
+/// when it failed, why. A unit that succeeded is read back from its folder
+/// when its record is needed, so memory does not grow with its results.
+#[derive(Clone, Debug, Serialize, Deserialize, PartialEq, Eq)]
+pub struct UnitStatus {
+    /// `sub-<label>` (or `sub-<label>_ses-<label>`).
+    pub subject: String,
+    /// The one-line reason when it failed; `None` when it succeeded.
+    pub error: Option<String>,
+}
+
+impl UnitStatus {
+    /// Whether the unit succeeded.
+    pub fn succeeded(&self) -> bool {
+        self.error.is_none()
+    }
+}
+
+impl From<&SubjectStatus> for UnitStatus {
+    fn from(s: &SubjectStatus) -> Self {
+        UnitStatus {
+            subject: s.subject.clone(),
+            error: if s.record.is_some() { None } else { Some(s.error.clone().unwrap_or_default()) },
+        }
+    }
+}
+
+#[derive(Deserialize)]
+struct SummaryRecord {
+    record: SubjectRecord,
+}
+
+/// The record in `dir/<unit>_summary.json`, with `output` set to `dir`.
+/// Only the `record` key is decoded.
+///
+/// # Errors
+/// [`IoError`] naming the summary when it cannot be read or holds no record.
+pub fn read_record(dir: &Path, unit: &str) -> Result<SubjectRecord, IoError> {
+    let path = dir.join(format!("{unit}_summary.json"));
+    let text = std::fs::read_to_string(&path).map_err(|e| IoError::os(&path, "cannot read", e))?;
+    let s: SummaryRecord = serde_json::from_str(&text)
+        .map_err(|e| IoError::format(&path, format!("expected a hierax summary with a `record`: {e}")))?;
+    let mut record = s.record;
+    record.output = dir.to_path_buf();
+    Ok(record)
 }
