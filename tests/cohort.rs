@@ -128,7 +128,10 @@ fn a_missing_file_fails_its_unit_only_and_a_rerun_keeps_the_others() {
     let err = String::from_utf8(o.stderr).unwrap();
     assert!(err.contains("sub-02: series: ") && err.contains("no such file"), "{err}");
     let log = std::fs::read_to_string(out.join("run_log.csv")).unwrap();
-    assert!(log.contains("sub-01,ok") && log.contains("sub-02,failed") && log.contains("sub-03,ok"), "{log}");
+    assert!(
+        log.contains("sub-01,ok,,") && log.contains("sub-02,failed,inputs,") && log.contains("sub-03,ok,,"),
+        "{log}"
+    );
     let first = csv_contents(&out);
     // Re-run: the two complete units are kept, not recomputed, and every table is unchanged.
     let o = run(&mut cohort_cmd(&data, &out));

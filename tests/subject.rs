@@ -344,7 +344,14 @@ fn cohort_run_logs_a_failing_subject_and_finishes_the_others() {
         "{err}"
     );
     let log = std::fs::read_to_string(out.join("run_log.csv")).unwrap();
-    assert!(log.contains("sub-01,ok") && log.contains("sub-02,failed") && log.contains("sub-03,ok"), "{log}");
+    assert!(
+        log.contains("sub-01,ok,,") && log.contains("sub-02,failed,load,") && log.contains("sub-03,ok,,"),
+        "{log}"
+    );
+    let cohort: serde_json::Value =
+        serde_json::from_str(&std::fs::read_to_string(out.join("cohort.json")).unwrap()).unwrap();
+    assert_eq!(cohort["units"]["failed"][0]["stage"], "load");
+    assert_eq!(cohort["units"]["failed"][0]["subject"], "sub-02");
     assert!(out.join("sub-01/sub-01_hierax.h5").is_file() && out.join("sub-03/sub-03_hierax.h5").is_file());
     assert!(!out.join("sub-02").exists(), "nothing written for the failed subject");
     assert!(!files_below(&out).iter().any(|p| p.to_string_lossy().contains("partial")));

@@ -403,7 +403,7 @@ impl Progress {
     }
 
     fn finished(&self, s: &SubjectStatus) {
-        if let Some(e) = &s.error {
+        if let Some(e) = s.failure.as_ref().map(|f| &f.message) {
             if self.terminal && !self.quiet {
                 self.bar.println(format!("hierax: error: {e}"));
             } else {
@@ -489,7 +489,8 @@ fn finish(
     let names: Vec<&str> = covariates.iter().map(|(c, _)| *c).collect();
     let (_, analysis) = finish_cohort(run, cfg, &names, title, intro)?;
     if run.n_succeeded() == 0 {
-        let first = run.units.iter().find_map(|s| s.error.clone()).unwrap_or_default();
+        let first =
+            run.units.iter().find_map(|s| s.failure.as_ref().map(|f| f.message.clone())).unwrap_or_default();
         eprintln!("hierax: error: every unit failed ({}); the first: {first}", run.units.len());
         println!("  written to    {} (run_log.csv lists every failure)", out.display());
         return Ok(ExitCode::from(1));

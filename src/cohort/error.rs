@@ -2,6 +2,7 @@
 
 use crate::io::IoError;
 use crate::stats::StatsError;
+use crate::subject::{SubjectError, UnitFailure, UnitStage};
 use std::path::PathBuf;
 
 /// An error building or running a cohort.
@@ -92,4 +93,38 @@ pub enum CohortError {
         #[source]
         source: StatsError,
     },
+}
+
+/// Why one unit of a cohort failed, with its cause kept as the error source.
+#[derive(Debug, thiserror::Error)]
+pub enum UnitError {
+    /// A file the patterns name does not exist.
+    #[error("{0}")]
+    Inputs(String),
+    /// Reading or validating the inputs failed.
+    #[error("{0}")]
+    Load(#[source] SubjectError),
+    /// The analysis failed.
+    #[error("{0}")]
+    Analyse(#[source] SubjectError),
+    /// Writing the unit's folder failed.
+    #[error("{0}")]
+    Write(#[source] IoError),
+}
+
+impl UnitError {
+    /// The stage that failed.
+    pub fn stage(&self) -> UnitStage {
+        match self {
+            UnitError::Inputs(_) => UnitStage::Inputs,
+            UnitError::Load(_) => UnitStage::Load,
+            UnitError::Analyse(_) => UnitStage::Analyse,
+            UnitError::Write(_) => UnitStage::Write,
+        }
+    }
+
+    /// The failure of unit `unit`, as a run records it.
+    pub fn failure(&self, unit: &str) -> UnitFailure {
+        UnitFailure { stage: self.stage(), message: format!("{unit}: {self}") }
+    }
 }

@@ -153,7 +153,7 @@ pub fn gather(out: &Path) -> Result<(CohortRun, serde_json::Value), CohortError>
         // tables read it again, one unit at a time.
         let record = read_record(path, name)?;
         covariates.extend(record.covariates.into_keys());
-        statuses.insert(name.clone(), UnitStatus { subject: name.clone(), error: None });
+        statuses.insert(name.clone(), UnitStatus { subject: name.clone(), failure: None });
     }
     let Some((_, _, params)) = first else {
         return Err(crate::io::IoError::format(

@@ -15,7 +15,7 @@ pub mod merge;
 pub mod model;
 pub mod run;
 
-pub use error::CohortError;
+pub use error::{CohortError, UnitError};
 pub use manifest::{CovariateKind, Manifest, Participant, Patterns};
 pub use run::{run_cohort, CohortRun, RunLock, RunOptions, SharedInputs};
 

@@ -6,7 +6,7 @@
 //! parameters from unchanged inputs is not recomputed), and guarded by a lock
 //! so that two runs never share an output folder.
 
-use super::{CohortError, Manifest, Participant};
+use super::{CohortError, Manifest, Participant, UnitError};
 use crate::control::Par;
 use crate::export::folder::{Marker, MARKER};
 use crate::io::provenance::sha256_file;
@@ -156,23 +156,34 @@ pub fn unit_inputs(manifest: &Manifest, p: &Participant, shared: &SharedInputs) 
     }
 }
 
-/// Load, analyse and write one unit; a failure becomes its status.
+/// Load, analyse and write one unit into `out/<unit>/`.
+///
+/// # Errors
+/// [`UnitError`] naming the stage that failed, with its cause as the source.
+pub fn run_unit(
+    inputs: &SubjectInputs,
+    cfg: &ValidSubjectConfig,
+    out: &Path,
+    command: &str,
+) -> Result<SubjectRecord, UnitError> {
+    let loaded = LoadedSubject::load(inputs, cfg).map_err(UnitError::Load)?;
+    let result = analyse_subject(&loaded, cfg, Par::Seq).map_err(UnitError::Analyse)?;
+    drop(loaded);
+    let dir = crate::export::subject::write_subject(&result, out, command).map_err(UnitError::Write)?;
+    Ok(SubjectRecord::of(&result, dir))
+}
+
+/// [`run_unit`], with a failure recorded as the unit's status (and any stale
+/// folder of an earlier run of the unit removed).
 pub fn run_one(inputs: &SubjectInputs, cfg: &ValidSubjectConfig, out: &Path, command: &str) -> SubjectStatus {
-    let result = LoadedSubject::load(inputs, cfg)
-        .and_then(|s| analyse_subject(&s, cfg, Par::Seq))
-        .map_err(|e| e.to_string())
-        .and_then(|r| {
-            let dir = crate::export::subject::write_subject(&r, out, command).map_err(|e| e.to_string())?;
-            Ok(SubjectRecord::of(&r, dir))
-        });
-    match result {
-        Ok(record) => SubjectStatus { subject: inputs.subject.clone(), record: Some(record), error: None },
+    match run_unit(inputs, cfg, out, command) {
+        Ok(record) => SubjectStatus { subject: inputs.subject.clone(), record: Some(record), failure: None },
         Err(e) => {
             remove_stale(&out.join(&inputs.subject));
             SubjectStatus {
                 subject: inputs.subject.clone(),
                 record: None,
-                error: Some(format!("{}: {e}", inputs.subject)),
+                failure: Some(e.failure(&inputs.subject)),
             }
         }
     }
@@ -202,16 +213,10 @@ pub fn run_cohort(
             let dir = out.join(&p.subject);
             let (status, kept) = if let Some(why) = &p.missing {
                 remove_stale(&dir);
-                (
-                    SubjectStatus {
-                        subject: p.subject.clone(),
-                        record: None,
-                        error: Some(format!("{}: {why}", p.subject)),
-                    },
-                    false,
-                )
+                let failure = UnitError::Inputs(why.clone()).failure(&p.subject);
+                (SubjectStatus { subject: p.subject.clone(), record: None, failure: Some(failure) }, false)
             } else if let Some(record) = opts.resume.then(|| reusable(&dir, &p.subject, cfg)).flatten() {
-                (SubjectStatus { subject: p.subject.clone(), record: Some(record), error: None }, true)
+                (SubjectStatus { subject: p.subject.clone(), record: Some(record), failure: None }, true)
             } else {
                 (run_one(&unit_inputs(manifest, p, shared), cfg, out, opts.command), false)
             };

@@ -186,16 +186,19 @@ pub fn write_unit_tables(
         csv.write_record(&header)?;
         let mut notes = notes.iter();
         for u in units {
-            match &u.error {
+            match &u.failure {
                 None => {
                     let n = notes.next().copied().unwrap_or(0);
                     csv.write_record([
                         u.subject.as_str(),
                         "ok",
+                        "",
                         &format!("{n} note(s) in {}_summary.json", u.subject),
                     ])?
                 }
-                Some(e) => csv.write_record([u.subject.as_str(), "failed", e.as_str()])?,
+                Some(f) => {
+                    csv.write_record([u.subject.as_str(), "failed", f.stage.label(), f.message.as_str()])?
+                }
             }
         }
         csv.flush()
@@ -275,7 +278,9 @@ pub fn cohort_json(
             "total": units.len(),
             "succeeded": units.iter().filter(|s| s.succeeded()).count(),
             "failed": units.iter().filter(|s| !s.succeeded()).map(|s| json!({
-                "subject": s.subject, "error": s.error,
+                "subject": s.subject,
+                "stage": s.failure.as_ref().map(|f| f.stage.label()),
+                "error": s.failure.as_ref().map(|f| f.message.as_str()),
             })).collect::<Vec<_>>(),
             "per_unit_tables": ["cohort.csv", "run_log.csv"],
         },
@@ -331,7 +336,13 @@ mod tests {
     }
 
     fn unit(s: &str, error: Option<&str>) -> UnitStatus {
-        UnitStatus { subject: s.into(), error: error.map(String::from) }
+        UnitStatus {
+            subject: s.into(),
+            failure: error.map(|m| crate::subject::UnitFailure {
+                stage: crate::subject::UnitStage::Inputs,
+                message: m.into(),
+            }),
+        }
     }
 
     use std::path::PathBuf;
@@ -359,10 +370,10 @@ mod tests {
         assert_eq!(
             log.lines().collect::<Vec<_>>(),
             [
-                "subject,status,message",
-                "sub-01,ok,3 note(s) in sub-01_summary.json",
-                "sub-02,failed,sub-02: series: no such file",
-                "sub-03,ok,3 note(s) in sub-03_summary.json"
+                "subject,status,stage,message",
+                "sub-01,ok,,3 note(s) in sub-01_summary.json",
+                "sub-02,failed,inputs,sub-02: series: no such file",
+                "sub-03,ok,,3 note(s) in sub-03_summary.json"
             ]
         );
         assert_eq!(values.len(), 2);

@@ -192,6 +192,7 @@ pub const RUN_LOG: TableDef = TableDef {
     columns: &[
         c("subject", "-", "sub-<label>"),
         c("status", "-", "ok or failed"),
+        c("stage", "-", "where a failed unit failed: inputs (a file the patterns name is missing), load (reading or validating its inputs), analyse or write; empty when ok"),
         c(
             "message",
             "-",

@@ -66,7 +66,11 @@ pub fn cohort_report(x: &CohortReportInput<'_>) -> String {
     let failures: Vec<Vec<String>> = x
         .units
         .iter()
-        .filter_map(|s| s.error.as_ref().map(|e| vec![s.subject.clone(), e.clone()]))
+        .filter_map(|s| {
+            s.failure
+                .as_ref()
+                .map(|f| vec![s.subject.clone(), f.stage.label().to_string(), f.message.clone()])
+        })
         .take(TABLE_ROWS)
         .collect();
     if !failures.is_empty() {
@@ -77,7 +81,7 @@ pub fn cohort_report(x: &CohortReportInput<'_>) -> String {
                 failures.len()
             ));
         }
-        r.table(&["unit", "error"], &failures);
+        r.table(&["unit", "stage", "error"], &failures);
     }
 
     r.heading("Outcomes");

@@ -71,15 +71,50 @@ impl SubjectRecord {
     }
 }
 
+/// The stage at which a unit of a cohort failed.
+#[derive(Clone, Copy, Debug, Serialize, Deserialize, PartialEq, Eq)]
+#[serde(rename_all = "snake_case")]
+pub enum UnitStage {
+    /// A file the patterns name does not exist.
+    Inputs,
+    /// Reading or validating the inputs.
+    Load,
+    /// The analysis (timescales, states, energies, links, nulls).
+    Analyse,
+    /// Writing the unit's folder.
+    Write,
+}
+
+impl UnitStage {
+    /// The label in `run_log.csv` and `cohort.json`.
+    pub fn label(self) -> &'static str {
+        match self {
+            UnitStage::Inputs => "inputs",
+            UnitStage::Load => "load",
+            UnitStage::Analyse => "analyse",
+            UnitStage::Write => "write",
+        }
+    }
+}
+
+/// Why a unit failed: the stage and the one-line reason (with its causes).
+#[derive(Clone, Debug, Serialize, Deserialize, PartialEq, Eq)]
+pub struct UnitFailure {
+    /// Where it failed.
+    pub stage: UnitStage,
+    /// `sub-XX: ` and the error, causes included.
+    pub message: String,
+}
+
 /// One subject of a cohort run: its record, or why it failed.
-#[derive(Clone, Debug, Serialize, Deserialize, PartialEq)]
+#[derive(Clone, Debug, PartialEq)]
 pub struct SubjectStatus {
     /// `sub-<label>`.
     pub subject: String,
     /// The record when the subject succeeded.
     pub record: Option<SubjectRecord>,
-    /// The one-line reason when it failed.
-    pub error: Option<String>,
+    /// Why it failed, when it did.
+    pub failure: Option<UnitFailure>,
 }
 
 /// One unit of a cohort run as a cohort keeps it in memory: its name and,
@@ -89,23 +124,20 @@ pub struct SubjectStatus {
 pub struct UnitStatus {
     /// `sub-<label>` (or `sub-<label>_ses-<label>`).
     pub subject: String,
-    /// The one-line reason when it failed; `None` when it succeeded.
-    pub error: Option<String>,
+    /// Why it failed; `None` when it succeeded.
+    pub failure: Option<UnitFailure>,
 }
 
 impl UnitStatus {
     /// Whether the unit succeeded.
     pub fn succeeded(&self) -> bool {
-        self.error.is_none()
+        self.failure.is_none()
     }
 }
 
 impl From<&SubjectStatus> for UnitStatus {
     fn from(s: &SubjectStatus) -> Self {
-        UnitStatus {
-            subject: s.subject.clone(),
-            error: if s.record.is_some() { None } else { Some(s.error.clone().unwrap_or_default()) },
-        }
+        UnitStatus { subject: s.subject.clone(), failure: s.failure.clone() }
     }
 }
 
