@@ -442,7 +442,7 @@ pub fn run_and_report(
     let _lock = RunLock::acquire(out, lock_name.as_deref())?;
     let progress = Progress::new(manifest.participants.len(), rep.quiet);
     let run = run_cohort(
-        &manifest,
+        manifest,
         shared,
         &cfg,
         out,
@@ -450,8 +450,6 @@ pub fn run_and_report(
         &|s| progress.finished(s),
     )?;
     progress.bar.finish_and_clear();
-    // The units' paths are no longer needed; free them before the cohort tables are built.
-    drop(manifest);
     println!(
         "  units         {} succeeded ({} kept from an earlier run), {} failed",
         run.n_succeeded(),

@@ -219,22 +219,19 @@ pub fn run(args: TimescalesArgs) -> anyhow::Result<ExitCode> {
     params.bias_correction = args.bias_correction;
     params.threads = args.jobs;
     let valid_params = params.check(n_frames).map_err(|e| with_flags(e, &spec))?;
-    if let Some(v) = &valid {
-        // Censoring, not the series, is at fault when it leaves too few frames.
-        let n_valid = v.iter().filter(|&&x| x).count();
-        if n_valid <= valid_params.max_lag() {
-            let by = args.censor_mask.clone().or_else(|| args.confounds.clone()).unwrap_or_default();
-            bail!(
-                "{by}: censoring leaves {n_valid} of {n_frames} frames valid; the timescales need more valid frames \
-                 than the lag bound --max-lag {}",
-                valid_params.max_lag()
-            );
-        }
-    }
     let result = estimate_timescales(series.data.view(), &names, valid.as_deref(), &confounds, &valid_params)
-        .map_err(|e| match (e.blames_confounds(&args.confound_columns), &args.confounds) {
-            (true, Some(c)) => anyhow::Error::new(e).context(c.clone()),
-            _ => with_flags(e, &spec),
+        .map_err(|e| {
+            let by = if e.blames_censoring() {
+                args.censor_mask.as_ref().or(args.confounds.as_ref())
+            } else if e.blames_confounds(&args.confound_columns) {
+                args.confounds.as_ref()
+            } else {
+                None
+            };
+            match by {
+                Some(c) => anyhow::Error::new(e).context(c.clone()),
+                None => with_flags(e, &spec),
+            }
         })?;
 
     let ok = result.regions.iter().filter(|r| r.status == RegionStatus::Ok).count();

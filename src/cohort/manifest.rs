@@ -121,7 +121,7 @@ impl Patterns {
 
     fn resolve_for(&self, root: &Path, pattern: &str, p: &Participant) -> PathBuf {
         let label = &p.subject_id()[4..];
-        let session = p.session_id.as_deref().map(|s| &s[4..]);
+        let session = p.session_id().map(|s| &s[4..]);
         self.resolve(root, pattern, label, session)
     }
 
@@ -149,26 +149,34 @@ pub enum CovariateKind {
 
 /// One unit (subject, or subject × session). Its input paths are not
 /// stored but resolved from the patterns when the unit runs
-/// ([`Manifest::inputs`]), and its covariates are kept as one text cell per
-/// column of [`Manifest::covariate_names`], so a cohort of 10,000 units
-/// holds about 150 bytes per unit.
+/// ([`Manifest::inputs`]), its session is read from its name, and its
+/// covariates are kept as one tab-joined text, one cell per column of
+/// [`Manifest::covariate_names`] (empty where its tables lack the column), so
+/// a cohort holds about 120 bytes per unit.
 #[derive(Clone, Debug, Serialize)]
 pub struct Participant {
     /// `sub-<label>` or `sub-<label>_ses-<label>`: the unit's name, folder and file prefix.
     pub subject: String,
-    /// `ses-<label>`, when the cohort has sessions.
-    pub session_id: Option<String>,
-    /// One cell per [`Manifest::covariate_names`] column (`None` where the
-    /// unit's tables lack that column).
-    covariates: Box<[Option<Box<str>>]>,
+    /// The covariate cells, tab-joined (a TSV cell holds no tab).
+    covariates: Box<str>,
     /// Why the unit cannot run (a missing file), if so.
-    pub missing: Option<String>,
+    pub missing: Option<Box<str>>,
 }
 
 impl Participant {
     /// `sub-<label>`: the unit's name without its session.
     pub fn subject_id(&self) -> &str {
         self.subject.split("_ses-").next().unwrap_or(&self.subject)
+    }
+
+    /// `ses-<label>`, when the unit is a session.
+    pub fn session_id(&self) -> Option<&str> {
+        self.subject.find("_ses-").map(|i| &self.subject[i + 1..])
+    }
+
+    /// Covariate cell `j` (empty where absent).
+    fn cell(&self, j: usize) -> &str {
+        self.covariates.split('\t').nth(j).unwrap_or("")
     }
 }
 
@@ -304,32 +312,28 @@ impl Manifest {
             } else {
                 vec![(None, Vec::new())]
             };
-            for (session_id, extra) in units {
-                let name = match &session_id {
+            for (session_id, extra) in &units {
+                let name = match session_id {
                     Some(s) => format!("{subject}_{s}"),
                     None => subject.clone(),
                 };
-                let mut cov: Vec<Option<Box<str>>> = vec![None; names.len()];
+                let mut cov: Vec<&str> = vec![""; names.len()];
                 for &(j, c) in &base {
-                    cov[j] = Some(c.into());
+                    cov[j] = c;
                 }
                 for (j, c) in extra {
-                    cov[j] = Some(c.into());
+                    cov[*j] = c;
                 }
-                let mut unit = Participant {
-                    subject: name,
-                    session_id,
-                    covariates: cov.into_boxed_slice(),
-                    missing: None,
-                };
-                unit.missing = patterns.first_missing(root, &unit);
+                let mut unit =
+                    Participant { subject: name, covariates: cov.join("\t").into(), missing: None };
+                unit.missing = patterns.first_missing(root, &unit).map(String::into_boxed_str);
                 participants.push(unit);
             }
         }
         let (covariate_names, order) = names.sorted();
         for p in &mut participants {
-            let cells = std::mem::take(&mut p.covariates);
-            p.covariates = order.iter().map(|&j| cells.get(j).cloned().flatten()).collect();
+            let sorted: Vec<&str> = order.iter().map(|&j| p.cell(j)).collect();
+            p.covariates = sorted.join("\t").into();
         }
         participants.sort_by(|a, b| a.subject.cmp(&b.subject));
         Ok(Manifest { root: root.to_path_buf(), patterns: patterns.clone(), covariate_names, participants })
@@ -340,10 +344,11 @@ impl Manifest {
         self.patterns.files(&self.root, p)
     }
 
-    /// Unit `p`'s covariate `name` as text, if its tables have that column.
+    /// Unit `p`'s covariate `name` as text (empty where its tables lack the
+    /// column), if any table of the cohort has that column.
     pub fn covariate<'a>(&self, p: &'a Participant, name: &str) -> Option<&'a str> {
         let j = self.covariate_names.binary_search_by(|n| n.as_str().cmp(name)).ok()?;
-        p.covariates.get(j).and_then(|c| c.as_deref())
+        Some(p.cell(j))
     }
 
     /// Every covariate of unit `p` (its tables' columns), plus
@@ -352,12 +357,12 @@ impl Manifest {
         let mut out: BTreeMap<String, String> = self
             .covariate_names
             .iter()
-            .zip(p.covariates.iter())
-            .filter_map(|(n, c)| c.as_ref().map(|c| (n.clone(), c.to_string())))
+            .zip(p.covariates.split('\t'))
+            .map(|(n, c)| (n.clone(), c.to_string()))
             .collect();
-        if let Some(s) = &p.session_id {
+        if let Some(s) = p.session_id() {
             out.insert("participant_id".into(), p.subject_id().to_string());
-            out.insert("session_id".into(), s.clone());
+            out.insert("session_id".into(), s.to_string());
         }
         out
     }

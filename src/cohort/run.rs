@@ -12,8 +12,8 @@ use crate::export::folder::{Marker, MARKER};
 use crate::io::provenance::sha256_file;
 use crate::io::InputSpec;
 use crate::subject::{
-    analyse_subject, read_record, LoadedSubject, SubjectInputs, SubjectRecord, SubjectStatus, UnitStatus,
-    ValidSubjectConfig,
+    analyse_subject, read_record, LoadedSubject, SubjectInputs, SubjectRecord, SubjectStatus, UnitFailure,
+    UnitStatus, ValidSubjectConfig,
 };
 use rayon::prelude::*;
 use serde::Serialize;
@@ -197,7 +197,7 @@ pub fn run_one(inputs: &SubjectInputs, cfg: &ValidSubjectConfig, out: &Path, com
 /// None today beyond what each unit records; the `Result` is kept for
 /// run-level failures.
 pub fn run_cohort(
-    manifest: &Manifest,
+    manifest: Manifest,
     shared: &SharedInputs,
     cfg: &ValidSubjectConfig,
     out: &Path,
@@ -206,19 +206,22 @@ pub fn run_cohort(
 ) -> Result<CohortRun, CohortError> {
     remove_dead_staging(out);
     let covariates = std::sync::Mutex::new(std::collections::BTreeSet::<String>::new());
-    let done: Vec<(UnitStatus, bool)> = manifest
+    let resumed = std::sync::atomic::AtomicUsize::new(0);
+    // During the run only each unit's failure (none for a success) is kept;
+    // the names come from the manifest afterwards.
+    let failures: Vec<Option<UnitFailure>> = manifest
         .participants
         .par_iter()
         .map(|p| {
             let dir = out.join(&p.subject);
             let (status, kept) = if let Some(why) = &p.missing {
                 remove_stale(&dir);
-                let failure = UnitError::Inputs(why.clone()).failure(&p.subject);
+                let failure = UnitError::Inputs(why.to_string()).failure(&p.subject);
                 (SubjectStatus { subject: p.subject.clone(), record: None, failure: Some(failure) }, false)
             } else if let Some(record) = opts.resume.then(|| reusable(&dir, &p.subject, cfg)).flatten() {
                 (SubjectStatus { subject: p.subject.clone(), record: Some(record), failure: None }, true)
             } else {
-                (run_one(&unit_inputs(manifest, p, shared), cfg, out, opts.command), false)
+                (run_one(&unit_inputs(&manifest, p, shared), cfg, out, opts.command), false)
             };
             progress(&status);
             if let Some(r) = &status.record {
@@ -229,16 +232,24 @@ pub fn run_cohort(
                     }
                 }
             }
-            // Only the name and any failure stay in memory; the record is on disk.
-            (UnitStatus::from(&status), kept)
+            if kept {
+                resumed.fetch_add(1, std::sync::atomic::Ordering::Relaxed);
+            }
+            // The record is on disk; only a failure stays in memory.
+            status.failure
         })
         .collect();
-    let resumed = done.iter().filter(|(_, k)| *k).count();
+    let units = manifest
+        .participants
+        .into_iter()
+        .zip(failures)
+        .map(|(p, failure)| UnitStatus { subject: p.subject, failure })
+        .collect();
     Ok(CohortRun {
         out: out.to_path_buf(),
-        units: done.into_iter().map(|(s, _)| s).collect(),
+        units,
         covariate_names: covariates.into_inner().unwrap_or_else(|e| e.into_inner()).into_iter().collect(),
-        resumed,
+        resumed: resumed.into_inner(),
     })
 }
 

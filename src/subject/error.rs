@@ -36,6 +36,19 @@ pub enum SubjectError {
         #[source]
         source: TimescaleError,
     },
+    /// Censoring by framewise displacement left too few frames.
+    #[error(
+        "{input}: timescales: {source} (framewise displacement above {threshold_mm} mm censored the rest)"
+    )]
+    Censoring {
+        /// The confounds table the displacement came from.
+        input: String,
+        /// The displacement threshold, mm.
+        threshold_mm: f64,
+        /// The cause.
+        #[source]
+        source: TimescaleError,
+    },
     /// Ranking the map into states failed, or surrogate maps could not be made.
     #[error("{input}: {stage}: {source}")]
     Hierarchy {

@@ -135,12 +135,6 @@ impl UnitStatus {
     }
 }
 
-impl From<&SubjectStatus> for UnitStatus {
-    fn from(s: &SubjectStatus) -> Self {
-        UnitStatus { subject: s.subject.clone(), failure: s.failure.clone() }
-    }
-}
-
 #[derive(Deserialize)]
 struct SummaryRecord {
     record: SubjectRecord,

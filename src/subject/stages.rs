@@ -13,8 +13,7 @@ use crate::stats::inference::{benjamini_hochberg, permutation_p_value, Alternati
 use crate::stats::nulls::{self, NullParams, RewireInfo};
 use crate::stats::StatsError;
 use crate::timescale::{
-    censor_from_displacement, estimate_timescales, ColumnSource, Estimator, NuisanceSpec, TimescaleError,
-    TimescaleParams,
+    censor_from_displacement, estimate_timescales, ColumnSource, Estimator, NuisanceSpec, TimescaleParams,
 };
 use ndarray::Array2;
 use rand::SeedableRng;
@@ -58,27 +57,13 @@ pub fn timescales(s: &LoadedSubject, cfg: &ValidSubjectConfig) -> Result<Timesca
     let vparams = tparams
         .check(n_frames)
         .map_err(|source| SubjectError::Timescales { input: series_label.clone(), source })?;
-    if let Some(v) = &valid {
-        // Censoring, not the series, is at fault when it leaves too few frames.
-        let n_valid = v.iter().filter(|&&x| x).count();
-        if n_valid <= vparams.max_lag() {
-            return Err(SubjectError::Timescales {
-                input: confounds_label(),
-                source: TimescaleError::SeriesTooShort {
-                    n_frames,
-                    n_valid,
-                    need: format!(
-                        "more valid frames than the lag bound max_lag = {} (framewise displacement above {} mm \
-                         censored the rest)",
-                        vparams.max_lag(),
-                        p.fd_threshold_mm.unwrap_or(f64::NAN)
-                    ),
-                },
-            });
-        }
-    }
     let result = estimate_timescales(s.series.view(), &s.names, valid.as_deref(), &s.confounds, &vparams)
         .map_err(|source| {
+            if source.blames_censoring() {
+                // Censoring is made from the confounds' framewise displacement.
+                let threshold_mm = p.fd_threshold_mm.unwrap_or(f64::NAN);
+                return SubjectError::Censoring { input: confounds_label(), threshold_mm, source };
+            }
             let input = if source.blames_confounds(&p.confound_columns) {
                 confounds_label()
             } else {
@@ -215,30 +200,32 @@ pub fn network_nulls(
     let np = null_params(cfg);
     let net = nulls::Network::new(s.weights.view(), s.distances.as_ref().map(|d| d.view()), p.directed)
         .map_err(err)?;
-    let (_, first) = nulls::rewire(model, &net, &np, &mut null_rng(p.seed, 0)).map_err(err)?;
-    nulls::assess(model, &net, std::slice::from_ref(&first)).map_err(err)?;
+    let (w0, info0) = nulls::rewire(model, &net, &np, &mut null_rng(p.seed, 0)).map_err(err)?;
+    nulls::assess(model, &net, std::slice::from_ref(&info0)).map_err(err)?;
     let outcomes = family_outcomes(cfg, NullFamily::Network);
     let vsys = cfg
         .system_for(s.n_regions())
         .map_err(|source| SubjectError::Control { input: s.specs.connectome.to_string(), source })?;
-    let rows: Vec<Result<(RewireInfo, Option<NullRow>), StatsError>> = (0..p.network_nulls)
-        .into_par_iter()
-        .map(|i| {
-            let (w, info) = nulls::rewire(model, &net, &np, &mut null_rng(p.seed, i))?;
-            // A randomised network the model cannot use (e.g. a region left without edges) is
-            // skipped and counted.
-            let summary = System::new(w.view(), p.directed, &vsys, Par::Seq).ok().and_then(|sys| {
-                let (e, _) = energy_matrix(&sys, states.matrix.view()).ok()?;
-                link::summarise(&link::pair_table(&e, Some(&link.state_timescale_s)).ok()?).ok()
-            });
-            let row = summary.map(|sm| NullRow {
-                index: i,
-                values: outcome_values(&outcomes, &sm, None),
-                rewire: Some(info.clone()),
-            });
-            Ok((info, row))
-        })
-        .collect();
+    // Null i's outcomes from its rewired weights. A randomised network the model cannot use
+    // (e.g. a region left without edges) is skipped and counted.
+    let evaluate = |i: usize, w: ndarray::Array2<f64>, info: RewireInfo| -> (RewireInfo, Option<NullRow>) {
+        let summary = System::new(w.view(), p.directed, &vsys, Par::Seq).ok().and_then(|sys| {
+            let (e, _) = energy_matrix(&sys, states.matrix.view()).ok()?;
+            link::summarise(&link::pair_table(&e, Some(&link.state_timescale_s)).ok()?).ok()
+        });
+        let row = summary.map(|sm| NullRow {
+            index: i,
+            values: outcome_values(&outcomes, &sm, None),
+            rewire: Some(info.clone()),
+        });
+        (info, row)
+    };
+    // The preflight rewiring is null 1 (the same random stream), so it is used, not redone.
+    let mut rows: Vec<Result<(RewireInfo, Option<NullRow>), StatsError>> = vec![Ok(evaluate(0, w0, info0))];
+    rows.par_extend((1..p.network_nulls).into_par_iter().map(|i| {
+        let (w, info) = nulls::rewire(model, &net, &np, &mut null_rng(p.seed, i))?;
+        Ok(evaluate(i, w, info))
+    }));
     let mut infos = Vec::with_capacity(rows.len());
     let mut kept = Vec::new();
     for r in rows {

@@ -501,6 +501,9 @@ pub fn estimate_timescales(
         None => &all_valid,
     };
     let n_valid = valid.iter().filter(|&&v| v).count();
+    if n_valid <= params.max_lag && n > params.max_lag {
+        return Err(TimescaleError::CensoredTooShort { n_frames: n, n_valid, max_lag: params.max_lag });
+    }
     if n_valid <= params.max_lag {
         return Err(TimescaleError::SeriesTooShort {
             n_frames: n,

@@ -19,6 +19,19 @@ pub enum TimescaleError {
         /// What the frames were needed for.
         need: String,
     },
+    /// Censoring left too few valid frames (the series alone was long enough).
+    #[error(
+        "censoring leaves {n_valid} of {n_frames} frames valid; the timescales need more valid frames than the \
+         lag bound max_lag = {max_lag}"
+    )]
+    CensoredTooShort {
+        /// Frames in the series.
+        n_frames: usize,
+        /// Frames left after censoring.
+        n_valid: usize,
+        /// The lag bound.
+        max_lag: usize,
+    },
     /// A per-frame input (mask, confounds) does not have one entry per frame.
     #[error("{what} has {found} frames, but the series has {expected}")]
     FrameCountMismatch {
@@ -71,6 +84,12 @@ pub enum TimescaleError {
 }
 
 impl TimescaleError {
+    /// Whether the censoring (its mask, or the confounds it was made from),
+    /// not the series, is at fault.
+    pub fn blames_censoring(&self) -> bool {
+        matches!(self, TimescaleError::CensoredTooShort { .. })
+    }
+
     /// Whether the confounds table, not the series, is at fault: a confound
     /// non-finite on a valid frame, or one of `confound_columns` that adds
     /// nothing to the nuisance design (e.g. a constant column).

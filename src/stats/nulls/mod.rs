@@ -154,6 +154,11 @@ pub struct Network<'a> {
     distances: Option<ArrayView2<'a, f64>>,
     directed: bool,
     edges: Vec<Edge>,
+    /// Out- and in-strengths, the target of strength matching (computed once, not per null).
+    strengths: (Vec<f64>, Vec<f64>),
+    /// Each edge's length, in edge order, and the same sorted (empty without distances).
+    lengths: Vec<f64>,
+    sorted_lengths: Vec<f64>,
 }
 
 impl<'a> Network<'a> {
@@ -194,7 +199,19 @@ impl<'a> Network<'a> {
                 found: edges.len(),
             });
         }
-        Ok(Network { weights, distances, directed, edges })
+        let lengths: Vec<f64> =
+            distances.map_or_else(Vec::new, |d| edges.iter().map(|e| d[[e.a, e.b]]).collect());
+        let mut sorted_lengths = lengths.clone();
+        sorted_lengths.sort_by(f64::total_cmp);
+        Ok(Network {
+            weights,
+            distances,
+            directed,
+            edges,
+            strengths: strengths(weights),
+            lengths,
+            sorted_lengths,
+        })
     }
 
     /// Regions.
@@ -271,11 +288,9 @@ pub fn rewire<R: Rng + ?Sized>(
         }
         (false, _) => None,
     };
-    let lengths: Vec<f64> = distance.map_or_else(Vec::new, |d| edges.iter().map(|e| d[[e.a, e.b]]).collect());
-    let mut sorted_lengths = lengths.clone();
-    sorted_lengths.sort_by(f64::total_cmp);
-    let bins = LengthBins::new(&sorted_lengths, params.length_bins.max(1));
-    let target = strengths(net.weights);
+    let (lengths, sorted_lengths) = (&net.lengths, &net.sorted_lengths);
+    let bins = LengthBins::new(sorted_lengths, params.length_bins.max(1));
+    let target = &net.strengths;
     let mut swaps = None;
     let mut ks = None;
     match model {
@@ -284,7 +299,7 @@ pub fn rewire<R: Rng + ?Sized>(
         }
         NullModel::StrengthSwap => {
             swaps = Some(swaps::swap_edges(n, &mut edges, directed, params.swaps_per_edge, rng, |_, _| true));
-            permute::strength_matched(&mut edges, directed, &target, None, rng);
+            permute::strength_matched(&mut edges, directed, target, None, rng);
         }
         NullModel::GeometrySwap => {
             let d = distance.expect("checked above");
@@ -299,12 +314,12 @@ pub fn rewire<R: Rng + ?Sized>(
             ));
             let mut after: Vec<f64> = edges.iter().map(|e| d[[e.a, e.b]]).collect();
             after.sort_by(f64::total_cmp);
-            ks = Some(ks_distance_sorted(&sorted_lengths, &after));
+            ks = Some(ks_distance_sorted(sorted_lengths, &after));
         }
-        NullModel::WeightPermutation => permute::strength_matched(&mut edges, directed, &target, None, rng),
+        NullModel::WeightPermutation => permute::strength_matched(&mut edges, directed, target, None, rng),
         NullModel::LengthBinShuffle => {
             let group: Vec<usize> = lengths.iter().map(|&l| bins.of(l)).collect();
-            permute::strength_matched(&mut edges, directed, &target, Some((&group, params.length_bins)), rng);
+            permute::strength_matched(&mut edges, directed, target, Some((&group, params.length_bins)), rng);
         }
     }
     let null = to_matrix(net.weights, &edges, directed);
@@ -312,7 +327,7 @@ pub fn rewire<R: Rng + ?Sized>(
         swaps_attempted: swaps.map(|s| s.0),
         swaps_accepted: swaps.map(|s| s.1),
         edges_changed: edges_changed(&net.edges, &null),
-        strength_error: strength_error(&target, &strengths(null.view())),
+        strength_error: strength_error(target, &strengths(null.view())),
         length_ks_distance: ks,
     };
     Ok((null, info))
