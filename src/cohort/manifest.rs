@@ -239,27 +239,48 @@ type Row = (usize, Vec<String>);
 /// A session label with its covariates.
 type Session = (String, BTreeMap<String, String>);
 
-/// A tab-separated table: header and rows (blank and `#` lines skipped; a
-/// UTF-8 byte-order mark, as spreadsheets write, is dropped).
-fn read_tsv(path: &Path) -> Result<(Vec<String>, Vec<Row>), CohortError> {
-    let text = std::fs::read_to_string(path).map_err(|e| IoError::os(path, "cannot read", e))?;
-    let text = text.strip_prefix('\u{feff}').unwrap_or(&text);
-    let mut lines = text.lines().enumerate().filter(|(_, l)| !l.trim().is_empty() && !l.starts_with('#'));
-    let (_, header) = lines.next().ok_or_else(|| IoError::format(path, "holds no header row"))?;
-    let header: Vec<String> = header.split('\t').map(|h| h.trim().to_string()).collect();
-    let mut rows = Vec::new();
-    for (i, line) in lines {
-        let cells: Vec<String> = line.split('\t').map(|c| c.trim().to_string()).collect();
-        if cells.len() != header.len() {
-            return Err(CohortError::BadRow {
-                path: path.to_path_buf(),
-                line: i + 1,
-                reason: format!("{} cells, expected {} like the header", cells.len(), header.len()),
-            });
+/// A tab-separated table: its text and header; rows are split one at a
+/// time as they are visited, so a table of 10,000 participants is never
+/// held as 10,000 rows of cells (blank and `#` lines skipped; a UTF-8
+/// byte-order mark, as spreadsheets write, is dropped).
+struct Tsv {
+    path: PathBuf,
+    text: String,
+    header: Vec<String>,
+    /// 0-based index of the header line.
+    header_line: usize,
+}
+
+impl Tsv {
+    fn read(path: &Path) -> Result<Self, CohortError> {
+        let mut text = std::fs::read_to_string(path).map_err(|e| IoError::os(path, "cannot read", e))?;
+        if text.starts_with('\u{feff}') {
+            text.drain(..'\u{feff}'.len_utf8());
         }
-        rows.push((i + 1, cells));
+        let (header_line, header) =
+            Self::lines_of(&text).next().ok_or_else(|| IoError::format(path, "holds no header row"))?;
+        let header: Vec<String> = header.split('\t').map(|h| h.trim().to_string()).collect();
+        Ok(Tsv { path: path.to_path_buf(), text, header, header_line })
     }
-    Ok((header, rows))
+
+    fn lines_of(text: &str) -> impl Iterator<Item = (usize, &str)> {
+        text.lines().enumerate().filter(|(_, l)| !l.trim().is_empty() && !l.starts_with('#'))
+    }
+
+    /// Rows after the header, each checked to have the header's width.
+    fn rows(&self) -> impl Iterator<Item = Result<Row, CohortError>> + '_ {
+        Self::lines_of(&self.text).filter(|(i, _)| *i > self.header_line).map(|(i, line)| {
+            let cells: Vec<String> = line.split('\t').map(|c| c.trim().to_string()).collect();
+            if cells.len() != self.header.len() {
+                return Err(CohortError::BadRow {
+                    path: self.path.clone(),
+                    line: i + 1,
+                    reason: format!("{} cells, expected {} like the header", cells.len(), self.header.len()),
+                });
+            }
+            Ok((i + 1, cells))
+        })
+    }
 }
 
 fn id_column(path: &Path, header: &[String], column: &str) -> Result<usize, CohortError> {
@@ -280,19 +301,17 @@ impl Manifest {
     pub fn discover(root: &Path, patterns: &Patterns) -> Result<Self, CohortError> {
         patterns.check()?;
         let table = root.join("participants.tsv");
-        let (header, rows) = read_tsv(&table)?;
-        let id_col = id_column(&table, &header, "participant_id")?;
+        let tsv = Tsv::read(&table)?;
+        let header = &tsv.header;
+        let id_col = id_column(&table, header, "participant_id")?;
         // Covariate columns in order of first appearance; sorted at the end.
         let mut names = Columns::default();
-        let mut seen = std::collections::HashSet::new();
-        let mut participants: Vec<Participant> = Vec::new();
-        for (line, cells) in rows {
+        let mut participants: Vec<Participant> = Vec::with_capacity(Tsv::lines_of(&tsv.text).count());
+        for row in tsv.rows() {
+            let (line, cells) = row?;
             let subject = cells[id_col].clone();
             let bad = |reason: String| CohortError::BadRow { path: table.clone(), line, reason };
             check_entity("sub", &subject).map_err(|e| bad(format!("participant_id: {e}")))?;
-            if !seen.insert(subject.clone()) {
-                return Err(bad(format!("participant `{subject}` is listed twice")));
-            }
             let base: Vec<(usize, &str)> = header
                 .iter()
                 .zip(&cells)
@@ -335,7 +354,23 @@ impl Manifest {
             let sorted: Vec<&str> = order.iter().map(|&j| p.cell(j)).collect();
             p.covariates = sorted.join("\t").into();
         }
-        participants.sort_by(|a, b| a.subject.cmp(&b.subject));
+        participants.sort_unstable_by(|a, b| a.subject.cmp(&b.subject));
+        // A participant listed twice gives two units of the same name, next to each other once
+        // sorted (found this way, not with a set of every name, to keep memory small).
+        if let Some(w) = participants.windows(2).find(|w| w[0].subject == w[1].subject) {
+            let id = w[1].subject_id().to_string();
+            let line = tsv
+                .rows()
+                .filter_map(Result::ok)
+                .filter(|(_, cells)| cells[id_col] == id)
+                .nth(1)
+                .map_or(0, |(line, _)| line);
+            return Err(CohortError::BadRow {
+                path: table,
+                line,
+                reason: format!("participant `{id}` is listed twice"),
+            });
+        }
         Ok(Manifest { root: root.to_path_buf(), patterns: patterns.clone(), covariate_names, participants })
     }
 
@@ -447,10 +482,12 @@ impl Manifest {
 fn sessions_of(root: &Path, subject: &str) -> Result<Vec<Session>, CohortError> {
     let table = root.join(subject).join(format!("{subject}_sessions.tsv"));
     if table.is_file() {
-        let (header, rows) = read_tsv(&table)?;
-        let id = id_column(&table, &header, "session_id")?;
+        let tsv = Tsv::read(&table)?;
+        let header = &tsv.header;
+        let id = id_column(&table, header, "session_id")?;
         let mut out: Vec<Session> = Vec::new();
-        for (line, cells) in rows {
+        for row in tsv.rows() {
+            let (line, cells) = row?;
             let ses = cells[id].clone();
             check_entity("ses", &ses).map_err(|e| CohortError::BadRow {
                 path: table.clone(),

@@ -17,10 +17,13 @@ trait NpySource {
     fn read_as<T: ReadableElement>(&mut self) -> Result<ArrayD<T>, ReadNpyError>;
 }
 
-struct NpyBytes<'a>(&'a [u8]);
-impl NpySource for NpyBytes<'_> {
+/// A `.npy` file read straight into the array (no copy of the file's bytes
+/// in memory); each decoding attempt reopens it.
+struct NpyFile<'a>(&'a std::path::Path);
+impl NpySource for NpyFile<'_> {
     fn read_as<T: ReadableElement>(&mut self) -> Result<ArrayD<T>, ReadNpyError> {
-        ArrayD::<T>::read_npy(Cursor::new(self.0))
+        let f = std::fs::File::open(self.0).map_err(ReadNpyError::Io)?;
+        ArrayD::<T>::read_npy(std::io::BufReader::new(f))
     }
 }
 
@@ -54,7 +57,12 @@ fn decode<S: NpySource>(src: &mut S) -> Result<(ArrayD<f64>, StoredType), ReadNp
             }
         };
     }
-    attempt!(f64, StoredType::Float64, |v| v);
+    // float64 as stored: no conversion pass, no second copy.
+    match src.read_as::<f64>() {
+        Ok(a) => return Ok((a, StoredType::Float64)),
+        Err(ReadNpyError::WrongDescriptor(_)) => {}
+        Err(e) => return Err(e),
+    }
     attempt!(f32, StoredType::Float32, f64::from);
     attempt!(i64, StoredType::Int64, |v| v as f64);
     attempt!(i32, StoredType::Int32, f64::from);
@@ -149,6 +157,19 @@ fn check_declared(path: &std::path::Path, what: &str, head: &[u8], available: u6
     Ok(())
 }
 
+/// Bytes of an npy file read for its header: enough for any version-1
+/// header (at most 65,535 bytes of dictionary) with room to spare.
+const NPY_HEAD_BYTES: usize = 1 << 17;
+
+/// The first `max` bytes of `path` (fewer if the file is shorter).
+fn read_head(path: &std::path::Path, max: usize) -> Result<Vec<u8>, IoError> {
+    use std::io::Read;
+    let f = std::fs::File::open(path).map_err(|e| IoError::os(path, "cannot open", e))?;
+    let mut head = Vec::with_capacity(max.min(1 << 12));
+    f.take(max as u64).read_to_end(&mut head).map_err(|e| IoError::os(path, "cannot read", e))?;
+    Ok(head)
+}
+
 /// Read a `.npy` file.
 ///
 /// # Errors
@@ -161,10 +182,13 @@ pub fn read_npy_file(spec: &InputSpec) -> Result<LoadedArray, IoError> {
             reason: format!("a .npy file holds one array; drop the key `{k}`"),
         });
     }
-    let bytes = read_bytes(&spec.path)?;
-    check_declared(&spec.path, "", &bytes, bytes.len() as u64)?;
+    // The header alone is checked against the file size before anything is allocated; the data
+    // are then read straight into the array, so memory holds one copy.
+    let head = read_head(&spec.path, NPY_HEAD_BYTES)?;
+    let size = std::fs::metadata(&spec.path).map_err(|e| IoError::os(&spec.path, "cannot read", e))?.len();
+    check_declared(&spec.path, "", &head, size)?;
     let (data, stored) =
-        decode(&mut NpyBytes(&bytes)).map_err(|e| IoError::format(&spec.path, describe(&e)))?;
+        decode(&mut NpyFile(&spec.path)).map_err(|e| IoError::format(&spec.path, describe(&e)))?;
     Ok(finish(spec, data, stored))
 }
 
