@@ -23,6 +23,9 @@ use rand_chacha::ChaCha8Rng;
 use rayon::prelude::*;
 use std::time::Instant;
 
+#[path = "support/numpy_eigh.rs"]
+mod numpy_eigh;
+
 /// Random symmetric weighted network (invented), ~30 % density, ring added so no node is isolated.
 fn network(n: usize, seed: u64) -> Array2<f64> {
     let mut rng = ChaCha8Rng::seed_from_u64(seed);
@@ -65,8 +68,6 @@ fn main() {
         partial_driver_routes();
         return;
     }
-    let python = std::env::var("HIERAX_REF_PYTHON").unwrap_or_else(|_| "python3".into());
-    let script = concat!(env!("CARGO_MANIFEST_DIR"), "/benches/control_numpy.py");
     let dir = std::env::temp_dir().join(format!("hierax-bench-{}", std::process::id()));
     std::fs::create_dir_all(&dir).expect("temp dir");
     println!("hierax control benchmark (shared 2-core machine; medians)");
@@ -75,24 +76,8 @@ fn main() {
         let x = states(n, 20, n as u64);
         let path = dir.join(format!("a{n}.npy"));
         ndarray_npy::write_npy(&path, &a).expect("write npy");
-        // numpy with OpenBLAS pinned to the same thread count as hierax, so
-        // that neither side is oversubscribed on the shared machine.
-        let numpy = |threads: usize| -> Option<f64> {
-            let o = std::process::Command::new(&python)
-                .arg(script)
-                .arg(&path)
-                .arg(reps.to_string())
-                .env("OPENBLAS_NUM_THREADS", threads.to_string())
-                .env("OMP_NUM_THREADS", threads.to_string())
-                .output()
-                .ok()?;
-            if !o.status.success() {
-                return None;
-            }
-            String::from_utf8_lossy(&o.stdout).trim().parse::<f64>().ok()
-        };
         for (label, par, threads) in [("2 threads", Par::rayon(2), 2), ("1 thread", Par::Seq, 1)] {
-            let numpy_s = numpy(threads);
+            let numpy_s = numpy_eigh::eigh_seconds(&path, reps, threads);
             full_energy(&a, &x, par);
             let t: Vec<f64> = (0..reps)
                 .map(|_| {

@@ -23,6 +23,9 @@ use rand::{Rng, SeedableRng};
 use rand_chacha::ChaCha8Rng;
 use std::time::Instant;
 
+#[path = "support/numpy_eigh.rs"]
+mod numpy_eigh;
+
 /// Random symmetric matrix with entries uniform in [0, 1) (invented).
 fn matrix(n: usize, seed: u64) -> Mat<f64> {
     let mut rng = ChaCha8Rng::seed_from_u64(seed);
@@ -74,8 +77,6 @@ fn time(reps: usize, f: impl Fn() -> f64) -> f64 {
 }
 
 fn main() {
-    let python = std::env::var("HIERAX_REF_PYTHON").unwrap_or_else(|_| "python3".into());
-    let script = concat!(env!("CARGO_MANIFEST_DIR"), "/benches/control_numpy.py");
     let dir = std::env::temp_dir().join(format!("hierax-eig-bench-{}", std::process::id()));
     std::fs::create_dir_all(&dir).expect("temp dir");
     let default: SelfAdjointEvdParams = Auto::<f64>::auto();
@@ -94,16 +95,7 @@ fn main() {
         let arr = ndarray::Array2::from_shape_fn((n, n), |(i, j)| a[(i, j)]);
         ndarray_npy::write_npy(&path, &arr).expect("write npy");
         for threads in [1usize, 2] {
-            let numpy = std::process::Command::new(&python)
-                .arg(script)
-                .arg(&path)
-                .arg(reps.to_string())
-                .env("OPENBLAS_NUM_THREADS", threads.to_string())
-                .env("OMP_NUM_THREADS", threads.to_string())
-                .output()
-                .ok()
-                .filter(|o| o.status.success())
-                .and_then(|o| String::from_utf8_lossy(&o.stdout).trim().parse::<f64>().ok());
+            let numpy = numpy_eigh::eigh_seconds(&path, reps, threads);
             let par = if threads == 1 { Par::Seq } else { Par::rayon(threads) };
             let mut candidates: Vec<(&str, SelfAdjointEvdParams)> = vec![("faer default", default)];
             if threads > 1 {

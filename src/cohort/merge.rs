@@ -4,7 +4,7 @@
 
 use super::{CohortError, CohortRun, RunLock};
 use crate::export::folder::Marker;
-use crate::subject::{read_record, UnitStatus};
+use crate::subject::{read_written_unit, UnitStatus};
 use serde::{Deserialize, Serialize};
 use std::path::Path;
 
@@ -20,20 +20,6 @@ pub struct ShardLog {
     pub parameters: serde_json::Value,
     /// Each unit's name and, when it failed, why.
     pub units: Vec<UnitStatus>,
-}
-
-/// What merge checks of a unit's summary.
-#[derive(Deserialize)]
-struct UnitProvenance {
-    provenance: ProvenanceKeys,
-}
-
-#[derive(Deserialize)]
-struct ProvenanceKeys {
-    #[serde(default)]
-    version: String,
-    #[serde(default)]
-    parameters: serde_json::Value,
 }
 
 /// The file name of shard `index` of `count`'s log.
@@ -143,15 +129,11 @@ pub fn gather(out: &Path) -> Result<(CohortRun, serde_json::Value), CohortError>
         if marker.kind != "subject" {
             continue;
         }
-        let summary = path.join(format!("{name}_summary.json"));
-        let text = std::fs::read_to_string(&summary)
-            .map_err(|e| crate::io::IoError::os(&summary, "cannot read", e))?;
-        let v: UnitProvenance = serde_json::from_str(&text)
-            .map_err(|e| crate::io::IoError::format(&summary, format!("not a hierax summary: {e}")))?;
+        let v = read_written_unit(path, name)?;
         check(name, &v.provenance.version, &v.provenance.parameters)?;
-        // The record is read here only for its covariate names; the cohort
-        // tables read it again, one unit at a time.
-        let record = read_record(path, name)?;
+        // Only the covariate names are kept; the cohort tables read the record again, one unit at
+        // a time.
+        let record = v.record;
         covariates.extend(record.covariates.into_keys());
         statuses.insert(name.clone(), UnitStatus { subject: name.clone(), failure: None });
     }

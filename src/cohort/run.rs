@@ -12,8 +12,8 @@ use crate::export::folder::{Marker, MARKER};
 use crate::io::provenance::sha256_file;
 use crate::io::InputSpec;
 use crate::subject::{
-    analyse_subject, read_record, LoadedSubject, SubjectInputs, SubjectRecord, SubjectStatus, UnitFailure,
-    UnitStatus, ValidSubjectConfig,
+    analyse_subject, read_written_unit, LoadedSubject, SubjectInputs, SubjectRecord, SubjectStatus,
+    UnitFailure, UnitStatus, ValidSubjectConfig,
 };
 use rayon::prelude::*;
 use serde::Serialize;
@@ -68,43 +68,11 @@ impl CohortRun {
     pub fn n_failed(&self) -> usize {
         self.units.len() - self.n_succeeded()
     }
-
-    /// The record of unit `unit`, read from its folder.
-    ///
-    /// # Errors
-    /// [`CohortError::Io`] when its summary cannot be read.
-    pub fn record(&self, unit: &str) -> Result<SubjectRecord, CohortError> {
-        Ok(read_record(&self.out.join(unit), unit)?)
-    }
-
-    /// The records of the units that succeeded, in name order, each read
-    /// from its folder when the iterator reaches it.
-    pub fn records(&self) -> impl Iterator<Item = Result<SubjectRecord, CohortError>> + '_ {
-        self.units.iter().filter(|u| u.succeeded()).map(|u| self.record(&u.subject))
-    }
 }
 
 /// The parameters digest that identifies a run's settings.
 pub fn parameters_marker(cfg: &ValidSubjectConfig, kind: &str) -> Marker {
     Marker::new(kind, &serde_json::to_value(cfg.params()).unwrap_or_default(), &[])
-}
-
-/// What resuming reads of a unit's summary.
-#[derive(serde::Deserialize)]
-struct Reusable {
-    provenance: ReusableProvenance,
-    record: SubjectRecord,
-}
-
-#[derive(serde::Deserialize)]
-struct ReusableProvenance {
-    inputs: Vec<ReusableInput>,
-}
-
-#[derive(serde::Deserialize)]
-struct ReusableInput {
-    spec: String,
-    sha256: String,
 }
 
 /// The record of a unit folder written earlier, if the folder is complete,
@@ -118,8 +86,7 @@ pub fn reusable(dir: &Path, unit: &str, cfg: &ValidSubjectConfig) -> Option<Subj
     {
         return None;
     }
-    let text = std::fs::read_to_string(dir.join(format!("{unit}_summary.json"))).ok()?;
-    let v: Reusable = serde_json::from_str(&text).ok()?;
+    let v = read_written_unit(dir, unit).ok()?;
     for input in &v.provenance.inputs {
         let spec = InputSpec::parse(&input.spec).ok()?;
         let (digest, _) = sha256_file(&spec.path).ok()?;
@@ -127,9 +94,7 @@ pub fn reusable(dir: &Path, unit: &str, cfg: &ValidSubjectConfig) -> Option<Subj
             return None;
         }
     }
-    let mut record = v.record;
-    record.output = dir.to_path_buf();
-    Some(record)
+    Some(v.record)
 }
 
 /// Remove a unit's folder from an earlier run when hierax made it, so a

@@ -34,7 +34,10 @@ pub use load::{
     check_entity, check_study_inputs, check_unit_name, hemisphere_codes, LoadedSubject, SubjectInputs,
 };
 pub use outcomes::{NullFamily, Outcome, OutcomeRole};
-pub use record::{read_record, SubjectRecord, SubjectStatus, UnitFailure, UnitStage, UnitStatus};
+pub use record::{
+    read_record, read_written_unit, SubjectRecord, SubjectStatus, UnitFailure, UnitStage, UnitStatus,
+    WrittenUnit,
+};
 pub use result::{NullTest, SubjectResult};
 
 use crate::control::Par;

@@ -135,22 +135,58 @@ impl UnitStatus {
     }
 }
 
-#[derive(Deserialize)]
-struct SummaryRecord {
-    record: SubjectRecord,
+/// What the cohort layer reads back of a unit's `_summary.json`: the record
+/// and the provenance that says how it was made. Other keys are skipped
+/// unparsed; one decoder serves the cohort tables, resuming and merging.
+#[derive(Clone, Debug, Deserialize)]
+pub struct WrittenUnit {
+    /// How the unit was made.
+    pub provenance: WrittenProvenance,
+    /// The unit's record, `output` set to its folder.
+    pub record: SubjectRecord,
 }
 
-/// The record in `dir/<unit>_summary.json`, with `output` set to `dir`.
-/// Only the `record` key is decoded.
+/// The provenance keys of a written unit.
+#[derive(Clone, Debug, Deserialize)]
+pub struct WrittenProvenance {
+    /// hierax version.
+    #[serde(default)]
+    pub version: String,
+    /// Every parameter used.
+    #[serde(default)]
+    pub parameters: serde_json::Value,
+    /// Each input's spec and SHA-256.
+    #[serde(default)]
+    pub inputs: Vec<WrittenInput>,
+}
+
+/// One input of a written unit.
+#[derive(Clone, Debug, Deserialize)]
+pub struct WrittenInput {
+    /// `PATH[:KEY]`.
+    pub spec: String,
+    /// SHA-256 of the file, hex.
+    pub sha256: String,
+}
+
+/// Read `dir/<unit>_summary.json`.
 ///
 /// # Errors
 /// [`IoError`] naming the summary when it cannot be read or holds no record.
-pub fn read_record(dir: &Path, unit: &str) -> Result<SubjectRecord, IoError> {
+pub fn read_written_unit(dir: &Path, unit: &str) -> Result<WrittenUnit, IoError> {
     let path = dir.join(format!("{unit}_summary.json"));
     let text = std::fs::read_to_string(&path).map_err(|e| IoError::os(&path, "cannot read", e))?;
-    let s: SummaryRecord = serde_json::from_str(&text)
-        .map_err(|e| IoError::format(&path, format!("expected a hierax summary with a `record`: {e}")))?;
-    let mut record = s.record;
-    record.output = dir.to_path_buf();
-    Ok(record)
+    let mut w: WrittenUnit = serde_json::from_str(&text).map_err(|e| {
+        IoError::format(&path, format!("expected a hierax summary with `provenance` and `record`: {e}"))
+    })?;
+    w.record.output = dir.to_path_buf();
+    Ok(w)
+}
+
+/// The record in `dir/<unit>_summary.json` ([`read_written_unit`]).
+///
+/// # Errors
+/// As [`read_written_unit`].
+pub fn read_record(dir: &Path, unit: &str) -> Result<SubjectRecord, IoError> {
+    Ok(read_written_unit(dir, unit)?.record)
 }
