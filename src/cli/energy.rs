@@ -124,32 +124,35 @@ pub fn run(args: EnergyArgs) -> anyhow::Result<ExitCode> {
             conn.isolated.iter().map(|i| (i + 1).to_string()).collect::<Vec<_>>().join(", ")
         );
     }
-    let mut inputs = vec![InputRecord::of("connectome", &conn_spec)?];
+    let mut inputs = vec![InputRecord::of_loaded("connectome", &la)?];
+    drop(la);
     let mut notes = conn.notes.clone();
 
     // States.
     let (states, state_source) = if let Some(s) = &args.states {
         let spec = InputSpec::parse(s)?;
-        let m = read_array(&spec)?.matrix()?;
+        let sla = read_array(&spec)?;
+        inputs.push(InputRecord::of_loaded("states", &sla)?);
+        let m = sla.into_matrix()?;
         let (x, transposed) = states_from_matrix(m.view(), n).map_err(|e| anyhow!("{spec}: {e}"))?;
         if transposed && m.nrows() == m.ncols() {
             notes.push("square states file read as one state per row".into());
         }
-        inputs.push(InputRecord::of("states", &spec)?);
         (x, format!("file {spec}"))
     } else {
         let (mspec, k) = match (&args.map, args.bins) {
             (Some(m), Some(k)) => (InputSpec::parse(m)?, k),
             _ => bail!("give --states SPEC, or --map SPEC with --bins K"),
         };
-        let map = validate::region_map(&read_array(&mspec)?, Some(n))?;
+        let mla = read_array(&mspec)?;
+        inputs.push(InputRecord::of_loaded("map", &mla)?);
+        let map = validate::region_map(&mla, Some(n))?;
         if let (Some(cn), Some(mn)) = (&conn.names, &map.names) {
             validate::names_agree((&conn_spec.to_string(), cn), (&mspec.to_string(), mn))?;
         }
         let built =
             build_states(&map.values.to_vec(), &StatesParams::new(k)).map_err(|e| anyhow!("{mspec}: {e}"))?;
         notes.extend(built.notes.iter().cloned());
-        inputs.push(InputRecord::of("map", &mspec)?);
         (
             built.matrix.clone(),
             format!("indicators of {k} equal-count bins of {mspec} (numpy array_split of a stable ascending sort)"),
@@ -170,8 +173,9 @@ pub fn run(args: EnergyArgs) -> anyhow::Result<ExitCode> {
         })?)
     } else {
         let spec = InputSpec::parse(d)?;
-        let w = read_array(&spec)?.vector()?;
-        inputs.push(InputRecord::of("drivers", &spec)?);
+        let wla = read_array(&spec)?;
+        inputs.push(InputRecord::of_loaded("drivers", &wla)?);
+        let w = wla.vector()?;
         drivers_file = Some(spec.to_string());
         Drivers::Weights(w.to_vec())
     };

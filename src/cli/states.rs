@@ -74,7 +74,7 @@ pub fn run(args: StatesArgs) -> anyhow::Result<ExitCode> {
         "binning": "numpy array_split of the stable argsort; the first n mod k bins hold one more region",
     });
     let mut prov = Provenance::new("states", parameters.clone());
-    let record = InputRecord::of("map", &spec)?;
+    let record = InputRecord::of_loaded("map", &la)?;
     let marker = Marker::new("states", &parameters, &[record.sha256.as_str()]);
     prov.inputs.push(record);
     let summary = serde_json::json!({

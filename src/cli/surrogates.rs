@@ -125,7 +125,7 @@ pub fn run(args: SurrogatesArgs) -> anyhow::Result<ExitCode> {
     let map = validate::region_map(&la, None)?;
     let values = map.values.to_vec();
     let n = values.len();
-    let mut inputs = vec![InputRecord::of("map", &map_spec)?];
+    let mut inputs = vec![InputRecord::of_loaded("map", &la)?];
     let method_table: Option<(&str, Table)>;
     let (surrogates, diagnostics, params) = match args.method {
         Method::Spin => {

@@ -146,11 +146,11 @@ fn pair<T: std::str::FromStr>(flag: &str, s: &str) -> anyhow::Result<(T, T)> {
 pub fn run(args: TimescalesArgs) -> anyhow::Result<ExitCode> {
     let spec = InputSpec::parse(&args.series)?;
     let la = read_array(&spec)?;
+    let mut inputs = vec![InputRecord::of_loaded("series", &la)?];
     let series = validate::series(la, args.orientation, args.regions)?;
     let (n_frames, n_regions) = series.data.dim();
     let names: Vec<String> =
         series.names.clone().unwrap_or_else(|| hierax::io::default_region_names(n_regions));
-    let mut inputs = vec![InputRecord::of("series", &spec)?];
 
     // Confounds table: every column by header name.
     let mut confounds: Vec<Confound> = Vec::new();
@@ -169,14 +169,14 @@ pub fn run(args: TimescalesArgs) -> anyhow::Result<ExitCode> {
         for (name, v) in args.confound_columns.iter().zip(values) {
             confounds.push(Confound { name: name.clone(), values: v });
         }
-        inputs.push(InputRecord::of("confounds", &cspec)?);
+        inputs.push(InputRecord::of_loaded("confounds", &table)?);
     }
 
     let (valid, censoring) = if let Some(raw) = &args.censor_mask {
         let mspec = InputSpec::parse(raw)?;
         let la = read_array(&mspec)?;
         let v = validate::frame_mask(&la, n_frames)?;
-        inputs.push(InputRecord::of("censor_mask", &mspec)?);
+        inputs.push(InputRecord::of_loaded("censor_mask", &la)?);
         (Some(v), serde_json::json!({"source": "mask", "spec": mspec.to_string()}))
     } else if let (Some(thr), Some(fd)) = (args.fd_threshold, &fd) {
         let v = censor_from_displacement(fd, thr, args.censor_after).map_err(|e| {

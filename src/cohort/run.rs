@@ -230,17 +230,26 @@ fn host() -> String {
         .unwrap_or_else(|_| "unknown-host".into())
 }
 
-/// Remove staging folders `.<unit>.<pid>.partial` left by runs that died
-/// (their process is gone); a live run's staging is left alone.
+/// Remove what runs that died (their process is gone) left half-written:
+/// staging folders `.<unit>.<pid>.partial`, which carry our marker from
+/// their start, and temporaries `.<file>.<pid>.partial` of the cohort-level
+/// files ([`COHORT_LEVEL_FILES`](crate::export::cohort::COHORT_LEVEL_FILES)).
+/// A live run's staging, and anything else, is left alone.
 pub fn remove_dead_staging(out: &Path) {
     let Ok(entries) = std::fs::read_dir(out) else { return };
     for e in entries.flatten() {
         let name = e.file_name().to_string_lossy().into_owned();
         let Some(stem) = name.strip_prefix('.').and_then(|n| n.strip_suffix(".partial")) else { continue };
-        let Some(pid) = stem.rsplit('.').next().and_then(|p| p.parse::<u32>().ok()) else { continue };
-        // Only staging of ours: it carries the marker from its start.
-        if pid != std::process::id() && !alive(pid) && e.path().join(MARKER).is_file() {
-            let _ = std::fs::remove_dir_all(e.path());
+        let Some((target, pid)) = stem.rsplit_once('.') else { continue };
+        let Ok(pid) = pid.parse::<u32>() else { continue };
+        if pid == std::process::id() || alive(pid) {
+            continue;
+        }
+        let path = e.path();
+        if path.is_dir() && path.join(MARKER).is_file() {
+            let _ = std::fs::remove_dir_all(&path);
+        } else if path.is_file() && crate::export::cohort::COHORT_LEVEL_FILES.contains(&target) {
+            let _ = std::fs::remove_file(&path);
         }
     }
 }
@@ -344,7 +353,14 @@ mod tests {
         let mine = dir.path().join(format!(".sub-02.{}.partial", std::process::id()));
         std::fs::create_dir(&mine).unwrap();
         std::fs::write(mine.join(MARKER), "{}").unwrap();
+        // A dead run's temporary of a cohort-level file goes; a file of the same shape we do not
+        // write stays.
+        let dead_table = dir.path().join(".cohort.csv.4194999.partial");
+        std::fs::write(&dead_table, "subject\n").unwrap();
+        let users_file = dir.path().join(".mine.csv.4194999.partial");
+        std::fs::write(&users_file, "x\n").unwrap();
         remove_dead_staging(dir.path());
         assert!(!dead.exists() && mine.exists() && users.exists());
+        assert!(!dead_table.exists() && users_file.exists());
     }
 }

@@ -288,6 +288,12 @@ pub fn cohort_json(
     })
 }
 
+/// Every file a cohort run writes at the top of its output folder. A run
+/// killed while writing one leaves its temporary `.<file>.<pid>.partial`,
+/// which the next run may remove because the name is ours.
+pub const COHORT_LEVEL_FILES: [&str; 6] =
+    ["cohort.csv", "run_log.csv", "group_tests.csv", "age_models.csv", "cohort.json", "report.html"];
+
 /// Write the cohort-level files into `out`: `group_tests.csv`,
 /// `age_models.csv` and `cohort.json` (the per-unit tables are written by
 /// [`write_unit_tables`]).

@@ -890,7 +890,9 @@ pub fn list_variables(path: &Path) -> Result<Vec<MatVariableInfo>, IoError> {
 ///   when it is truncated or corrupt (naming the byte offset).
 pub fn read(spec: &InputSpec) -> Result<LoadedArray, IoError> {
     let bytes = read_bytes(&spec.path)?;
-    read_from_bytes(spec, &bytes)
+    let mut la = read_from_bytes(spec, &bytes)?;
+    la.digest = Some(super::provenance::FileDigest::of_bytes(&bytes));
+    Ok(la)
 }
 
 /// [`read`] on the file's bytes.

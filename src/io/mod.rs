@@ -226,12 +226,24 @@ pub struct LoadedArray {
     pub col_names: Option<Vec<String>>,
     /// Remarks a user should see, e.g. how many `n/a` cells became NaN.
     pub notes: Vec<String>,
+    /// SHA-256 of the whole file, when the reader saw every byte (it is
+    /// taken in the same pass; see [`provenance::InputRecord::of_loaded`]).
+    pub digest: Option<provenance::FileDigest>,
 }
 
 impl LoadedArray {
     /// A loaded array with no names and no notes.
     pub fn new(spec: InputSpec, data: ArrayD<f64>, stored: StoredType) -> Self {
-        LoadedArray { spec, data, stored, sparse: false, row_names: None, col_names: None, notes: Vec::new() }
+        LoadedArray {
+            spec,
+            data,
+            stored,
+            sparse: false,
+            row_names: None,
+            col_names: None,
+            notes: Vec::new(),
+            digest: None,
+        }
     }
 
     /// The array as a matrix. A 1-D array becomes one column.

@@ -5,6 +5,7 @@
 //! Values become `f64`; integers beyond ±2⁵³ would lose precision, and when
 //! that happens it is said in the notes.
 
+use super::provenance::{DigestingReader, FileDigest};
 use super::{read_bytes, InputSpec, IoError, LoadedArray, StoredType};
 use ndarray::{ArrayD, OwnedRepr};
 use ndarray_npy::{NpzReader, ReadNpyError, ReadNpyExt, ReadNpzError, ReadableElement};
@@ -18,22 +19,29 @@ trait NpySource {
 }
 
 /// A `.npy` file read straight into the array (no copy of the file's bytes
-/// in memory); each decoding attempt reopens it.
-struct NpyFile<'a>(&'a std::path::Path);
+/// in memory); each decoding attempt reopens it. The attempt that decodes
+/// also digests the file in the same pass.
+struct NpyFile<'a> {
+    path: &'a std::path::Path,
+    digest: Option<FileDigest>,
+}
 impl NpySource for NpyFile<'_> {
     fn read_as<T: ReadableElement>(&mut self) -> Result<ArrayD<T>, ReadNpyError> {
-        let f = std::fs::File::open(self.0).map_err(ReadNpyError::Io)?;
-        ArrayD::<T>::read_npy(std::io::BufReader::new(f))
+        let f = std::fs::File::open(self.path).map_err(ReadNpyError::Io)?;
+        let mut reader = DigestingReader::new(std::io::BufReader::with_capacity(1 << 20, f));
+        let a = ArrayD::<T>::read_npy(&mut reader)?;
+        self.digest = Some(reader.finish().map_err(ReadNpyError::Io)?);
+        Ok(a)
     }
 }
 
-struct NpzMember<'a> {
-    zip: &'a mut NpzReader<Cursor<Vec<u8>>>,
+struct NpzMember<'a, 'b> {
+    zip: &'a mut NpzReader<Cursor<&'b [u8]>>,
     name: String,
     /// An error of the archive itself (not of the array), kept to report.
     archive_error: Option<String>,
 }
-impl NpySource for NpzMember<'_> {
+impl NpySource for NpzMember<'_, '_> {
     fn read_as<T: ReadableElement>(&mut self) -> Result<ArrayD<T>, ReadNpyError> {
         match self.zip.by_name::<OwnedRepr<T>, ndarray::IxDyn>(&self.name) {
             Ok(a) => Ok(a),
@@ -187,9 +195,11 @@ pub fn read_npy_file(spec: &InputSpec) -> Result<LoadedArray, IoError> {
     let head = read_head(&spec.path, NPY_HEAD_BYTES)?;
     let size = std::fs::metadata(&spec.path).map_err(|e| IoError::os(&spec.path, "cannot read", e))?.len();
     check_declared(&spec.path, "", &head, size)?;
-    let (data, stored) =
-        decode(&mut NpyFile(&spec.path)).map_err(|e| IoError::format(&spec.path, describe(&e)))?;
-    Ok(finish(spec, data, stored))
+    let mut file = NpyFile { path: &spec.path, digest: None };
+    let (data, stored) = decode(&mut file).map_err(|e| IoError::format(&spec.path, describe(&e)))?;
+    let mut la = finish(spec, data, stored);
+    la.digest = file.digest;
+    Ok(la)
 }
 
 /// Read one array of a `.npz` archive; the key may be omitted when it holds one.
@@ -200,7 +210,7 @@ pub fn read_npy_file(spec: &InputSpec) -> Result<LoadedArray, IoError> {
 pub fn read_npz_file(spec: &InputSpec) -> Result<LoadedArray, IoError> {
     let bytes = read_bytes(&spec.path)?;
     let not_npz = |e: ReadNpzError| IoError::format(&spec.path, format!("not a readable .npz archive: {e}"));
-    let mut zip = NpzReader::new(Cursor::new(bytes.clone())).map_err(not_npz)?;
+    let mut zip = NpzReader::new(Cursor::new(&bytes[..])).map_err(not_npz)?;
     let names: Vec<String> = zip
         .names()
         .map_err(not_npz)?
@@ -236,6 +246,7 @@ pub fn read_npz_file(spec: &InputSpec) -> Result<LoadedArray, IoError> {
         decoded.map_err(|e| IoError::format(&spec.path, format!("array `{key}`: {}", describe(&e))))?;
     let mut la = finish(spec, data, stored);
     la.spec.key = Some(key);
+    la.digest = Some(FileDigest::of_bytes(&bytes));
     Ok(la)
 }
 
@@ -277,7 +288,7 @@ fn check_member(spec: &InputSpec, bytes: &[u8], key: &str) -> Result<(), IoError
 pub fn list_npz(path: &std::path::Path) -> Result<Vec<String>, IoError> {
     let bytes = read_bytes(path)?;
     let not_npz = |e: ReadNpzError| IoError::format(path, format!("not a readable .npz archive: {e}"));
-    let mut zip = NpzReader::new(Cursor::new(bytes)).map_err(not_npz)?;
+    let mut zip = NpzReader::new(Cursor::new(&bytes[..])).map_err(not_npz)?;
     let names: Vec<String> = zip.names().map_err(not_npz)?;
     let mut out = Vec::new();
     for raw in names {
@@ -317,6 +328,27 @@ mod tests {
         b.append(&mut h);
         b.extend_from_slice(&[0u8; 16]);
         b
+    }
+
+    #[test]
+    fn the_digest_taken_while_reading_equals_the_file_digest() {
+        // float64 decodes on the first attempt, int32 after several: both digest the whole file.
+        let dir = tempfile::tempdir().unwrap();
+        for (name, a) in [
+            ("f.npy", ndarray::arr2(&[[1.0f64, 2.0], [3.0, 4.0]]).into_dyn()),
+            ("i.npy", ndarray::arr2(&[[1.0f64, -2.0], [3.0, 7.0]]).into_dyn()),
+        ] {
+            let p = dir.path().join(name);
+            if name == "i.npy" {
+                ndarray_npy::write_npy(&p, &a.mapv(|v| v as i32)).unwrap();
+            } else {
+                ndarray_npy::write_npy(&p, &a).unwrap();
+            }
+            let la = read_npy_file(&InputSpec::new(&p, None)).unwrap();
+            assert_eq!(la.data, a);
+            let (sha, bytes) = super::super::provenance::sha256_file(&p).unwrap();
+            assert_eq!(la.digest, Some(FileDigest { sha256: sha, bytes }), "{name}");
+        }
     }
 
     #[test]

@@ -28,6 +28,85 @@ impl InputRecord {
         let (sha256, bytes) = sha256_file(&spec.path)?;
         Ok(InputRecord { role: role.to_string(), spec: spec.to_string(), sha256, bytes })
     }
+
+    /// The record of an input already read: the digest its reader took of
+    /// the bytes as they were read, so the file is not read a second time
+    /// (and the digest is of exactly what was analysed). Readers that do not
+    /// see every byte (HDF5 reads only the dataset) leave no digest, and the
+    /// file is digested here.
+    ///
+    /// # Errors
+    /// [`IoError::Os`] when the file must be digested and cannot be read.
+    pub fn of_loaded(role: &str, loaded: &super::LoadedArray) -> Result<Self, IoError> {
+        match &loaded.digest {
+            Some(d) => Ok(InputRecord {
+                role: role.to_string(),
+                spec: loaded.spec.to_string(),
+                sha256: d.sha256.clone(),
+                bytes: d.bytes,
+            }),
+            None => Self::of(role, &loaded.spec),
+        }
+    }
+}
+
+/// SHA-256 (FIPS 180-4) of a whole file's bytes, taken by the reader that
+/// read them.
+#[derive(Clone, Debug, PartialEq, Eq)]
+pub struct FileDigest {
+    /// Lower-case hex.
+    pub sha256: String,
+    /// File size in bytes.
+    pub bytes: u64,
+}
+
+impl FileDigest {
+    /// The digest of bytes in memory.
+    pub fn of_bytes(data: &[u8]) -> Self {
+        FileDigest { sha256: hex(&Sha256::digest(data)), bytes: data.len() as u64 }
+    }
+}
+
+/// A reader that digests every byte it passes on, so a file is hashed in
+/// the same pass that reads it.
+pub(crate) struct DigestingReader<R> {
+    inner: R,
+    hasher: Sha256,
+    bytes: u64,
+}
+
+impl<R: std::io::Read> DigestingReader<R> {
+    pub(crate) fn new(inner: R) -> Self {
+        DigestingReader { inner, hasher: Sha256::new(), bytes: 0 }
+    }
+
+    /// Read whatever the consumer left (trailing bytes still belong to the
+    /// file) and return the digest of all of it.
+    pub(crate) fn finish(mut self) -> std::io::Result<FileDigest> {
+        std::io::copy(&mut self.inner, &mut HashSink(&mut self.hasher, &mut self.bytes))?;
+        Ok(FileDigest { sha256: hex(&self.hasher.finalize()), bytes: self.bytes })
+    }
+}
+
+impl<R: std::io::Read> std::io::Read for DigestingReader<R> {
+    fn read(&mut self, buf: &mut [u8]) -> std::io::Result<usize> {
+        let n = self.inner.read(buf)?;
+        self.hasher.update(&buf[..n]);
+        self.bytes += n as u64;
+        Ok(n)
+    }
+}
+
+struct HashSink<'a>(&'a mut Sha256, &'a mut u64);
+impl std::io::Write for HashSink<'_> {
+    fn write(&mut self, buf: &[u8]) -> std::io::Result<usize> {
+        self.0.update(buf);
+        *self.1 += buf.len() as u64;
+        Ok(buf.len())
+    }
+    fn flush(&mut self) -> std::io::Result<()> {
+        Ok(())
+    }
 }
 
 /// Everything needed to say how an output was made.
@@ -136,6 +215,20 @@ mod tests {
         let (h, n) = sha256_file(&p).unwrap();
         assert_eq!(h, "ba7816bf8f01cfea414140de5dae2223b00361a396177a9cb410ff61f20015ad");
         assert_eq!(n, 3);
+    }
+
+    #[test]
+    fn digests_of_bytes_and_of_a_read_pass_equal_the_file_digest() {
+        // FIPS 180-2, Appendix B.2: the 56-byte two-block message.
+        let msg = b"abcdbcdecdefdefgefghfghighijhijkijkljklmklmnlmnomnopnopq";
+        let expected = "248d6a61d20638b8e5c026930c3e6039a33ce45964ff2167f6ecedd419db06c1";
+        assert_eq!(FileDigest::of_bytes(msg).sha256, expected);
+        // A consumer that reads only part of the stream: finish() digests the rest.
+        let mut r = DigestingReader::new(&msg[..]);
+        let mut head = [0u8; 10];
+        std::io::Read::read_exact(&mut r, &mut head).unwrap();
+        let d = r.finish().unwrap();
+        assert_eq!((d.sha256.as_str(), d.bytes), (expected, 56));
     }
 
     #[test]

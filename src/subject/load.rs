@@ -158,12 +158,15 @@ impl LoadedSubject {
         let conn = validate::connectome(&conn_la, &rules)?;
         let n = conn.weights.nrows();
         notes.extend(conn.notes.iter().map(|s| format!("connectome: {s}")));
-        records.push(InputRecord::of("connectome", &inputs.connectome)?);
+        records.push(InputRecord::of_loaded("connectome", &conn_la)?);
+        drop(conn_la);
 
-        let series = validate::series(read_array(&inputs.series)?, p.orientation, Some(n))?;
-        records.push(InputRecord::of("series", &inputs.series)?);
-        let map = validate::region_map(&read_array(&inputs.map)?, Some(n))?;
-        records.push(InputRecord::of("map", &inputs.map)?);
+        let series_la = read_array(&inputs.series)?;
+        records.push(InputRecord::of_loaded("series", &series_la)?);
+        let series = validate::series(series_la, p.orientation, Some(n))?;
+        let map_la = read_array(&inputs.map)?;
+        records.push(InputRecord::of_loaded("map", &map_la)?);
+        let map = validate::region_map(&map_la, Some(n))?;
         notes.extend(map.notes.iter().map(|s| format!("map: {s}")));
         let names =
             reconcile_names(inputs, conn.names.as_deref(), series.names.as_deref(), map.names.as_deref(), n)?;
@@ -178,8 +181,9 @@ impl LoadedSubject {
         };
         let distances = match &inputs.distances {
             Some(spec) => {
-                records.push(InputRecord::of("distances", spec)?);
-                let d = read_array(spec)?.matrix()?;
+                let la = read_array(spec)?;
+                records.push(InputRecord::of_loaded("distances", &la)?);
+                let d = la.into_matrix()?;
                 if d.dim() != (n, n) {
                     return Err(IoError::invalid(
                         spec,
@@ -206,8 +210,9 @@ impl LoadedSubject {
         };
         let sphere = match (&inputs.sphere, p.map_nulls > 0 && p.map_null_method == SurrogateMethod::Spin) {
             (Some(spec), true) => {
-                records.push(InputRecord::of("sphere", spec)?);
-                let coords = read_array(spec)?.matrix()?;
+                let la = read_array(spec)?;
+                records.push(InputRecord::of_loaded("sphere", &la)?);
+                let coords = la.into_matrix()?;
                 let hemi = match &inputs.hemisphere {
                     Some(h) => {
                         records.push(InputRecord::of("hemisphere", h)?);
