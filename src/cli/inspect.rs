@@ -78,19 +78,23 @@ fn check_role(la: &LoadedArray, role: Role, args: &InspectArgs) -> Result<Vec<St
 }
 
 fn summary(la: &LoadedArray) -> serde_json::Value {
-    let finite: Vec<f64> = la.data.iter().copied().filter(|v| v.is_finite()).collect();
-    let n = finite.len();
-    let (min, max, mean) = if n == 0 {
-        (f64::NAN, f64::NAN, f64::NAN)
-    } else {
-        let min = finite.iter().copied().fold(f64::INFINITY, f64::min);
-        let max = finite.iter().copied().fold(f64::NEG_INFINITY, f64::max);
-        (min, max, finite.iter().sum::<f64>() / n as f64)
-    };
+    // One pass, no copy of the values (a series can be as large as memory allows).
+    let (mut n, mut zeros, mut sum) = (0usize, 0usize, 0.0f64);
+    let (mut min, mut max) = (f64::INFINITY, f64::NEG_INFINITY);
+    for &v in la.data.iter() {
+        zeros += usize::from(v == 0.0);
+        if v.is_finite() {
+            n += 1;
+            sum += v;
+            min = min.min(v);
+            max = max.max(v);
+        }
+    }
+    let (min, max, mean) = if n == 0 { (f64::NAN, f64::NAN, f64::NAN) } else { (min, max, sum / n as f64) };
     serde_json::json!({
         "min": min, "max": max, "mean": mean,
         "non_finite": la.data.len() - n,
-        "zeros": la.data.iter().filter(|v| **v == 0.0).count(),
+        "zeros": zeros,
     })
 }
 
