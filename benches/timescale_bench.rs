@@ -81,7 +81,8 @@ fn case(label: &str, n_frames: usize, n_regions: usize, max_lag: usize, repeats:
 
     let names: Vec<String> = (0..n_regions).map(|j| format!("r{j}")).collect();
     let mut p = TimescaleParams::new(TR_S);
-    p.estimators = vec![Estimator::InitialPositiveSum, Estimator::Acw50, Estimator::Acw0];
+    p.estimators =
+        vec![Estimator::named("initial-positive-sum"), Estimator::named("acw50"), Estimator::named("acw0")];
     p.max_lag = Some(max_lag);
     let v = p.check(n_frames).expect("params");
     let reset = reset_hwm();
@@ -121,10 +122,11 @@ fn case(label: &str, n_frames: usize, n_regions: usize, max_lag: usize, repeats:
     for (key, get) in [
         (
             "acw0_interp",
-            &(|r: &hierax::timescale::RegionResult| r.estimates.acw0_interp_s) as &dyn Fn(&_) -> f64,
+            &(|r: &hierax::timescale::RegionResult| r.estimates.raw_value("acw0_interp_s"))
+                as &dyn Fn(&_) -> f64,
         ),
-        ("acw50_interp", &|r: &hierax::timescale::RegionResult| r.estimates.acw50_interp_s),
-        ("ips", &|r: &hierax::timescale::RegionResult| r.estimates.ips_s),
+        ("acw50_interp", &|r: &hierax::timescale::RegionResult| r.estimates.raw_value("acw50_interp_s")),
+        ("ips", &|r: &hierax::timescale::RegionResult| r.estimates.raw_value("ips_tau_s")),
     ] {
         if let Some(vals) = py["check"][key].as_array() {
             for (r, pv) in res.regions.iter().zip(vals) {

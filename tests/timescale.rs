@@ -156,7 +156,11 @@ fn ar1_simulations_land_where_theory_says() {
     }
     let names: Vec<String> = (0..sims).map(|j| format!("s{j}")).collect();
     let mut p = TimescaleParams::new(tr);
-    p.estimators = vec![Estimator::Acw50, Estimator::ExpFit, Estimator::InitialPositiveSum];
+    p.estimators = vec![
+        Estimator::named("acw50"),
+        Estimator::named("exp-fit"),
+        Estimator::named("initial-positive-sum"),
+    ];
     p.max_lag = Some(l);
     p.fit_lags = FitLags::Range { first: 1, last: 10 };
     p.bias_correction = BiasCorrection::Ar1;
@@ -199,8 +203,8 @@ fn ar1_simulations_land_where_theory_says() {
     let acw = |a: &[f64]| hierax::timescale::estimators::autocorrelation_window(a, 0.5, tr).unwrap().1;
     let expfit = |a: &[f64]| fit_exp_decay(a, tr, FitLags::Range { first: 1, last: 10 }, 3.0).unwrap().tau_s;
     for (label, theory, truth, (m, se)) in [
-        ("acw50_interp", acw(&exp_acf), acw(&true_acf), stat(&|r| r.estimates.acw50_interp_s)),
-        ("exp_tau", expfit(&exp_acf), expfit(&true_acf), stat(&|r| r.estimates.exp.unwrap().tau_s)),
+        ("acw50_interp", acw(&exp_acf), acw(&true_acf), stat(&|r| r.estimates.raw_value("acw50_interp_s"))),
+        ("exp_tau", expfit(&exp_acf), expfit(&true_acf), stat(&|r| r.estimates.raw_value("exp_tau_s"))),
     ] {
         let tol = 3.0 * se + 0.25 * (theory - truth).abs();
         eprintln!("{label}: mean {m:.5} (se {se:.5}), first-order theory {theory:.5}, infinite-n {truth:.5}");
@@ -410,7 +414,7 @@ fn block_bootstrap_se_matches_the_spread_over_simulations() {
     }
     let names: Vec<String> = (0..sims).map(|j| format!("s{j}")).collect();
     let mut p = TimescaleParams::new(tr);
-    p.estimators = vec![Estimator::Acw50];
+    p.estimators = vec![Estimator::named("acw50")];
     p.max_lag = Some(60);
     p.bias_correction = BiasCorrection::Ar1;
     let v = p.check(n).unwrap();
@@ -420,7 +424,7 @@ fn block_bootstrap_se_matches_the_spread_over_simulations() {
         let m = xs.iter().sum::<f64>() / xs.len() as f64;
         (xs.iter().map(|x| (x - m).powi(2)).sum::<f64>() / (xs.len() - 1) as f64).sqrt()
     };
-    let sd_acw = sd(&|r| r.estimates.acw50_interp_s);
+    let sd_acw = sd(&|r| r.estimates.raw_value("acw50_interp_s"));
     let sd_ar1 = sd(&|r| r.estimates.ar1_tau_s);
     let mut pb = p.clone();
     pb.bootstrap = 200;
@@ -491,23 +495,27 @@ fn implausible_fits_are_flagged_and_never_reported() {
         for (j, r) in res.regions.iter().enumerate() {
             let e = &r.estimates;
             // The invariant: status ok <=> a reported, plausible value.
-            let exp_ok = e.status_of(Estimator::ExpFit) == hierax::timescale::EstimateStatus::Ok;
-            if let Some(f) = e.exp {
-                assert_eq!(exp_ok, f.amplitude > 0.0 && bounds.contains(f.tau_s), "region {j}: {f:?}");
+            let exp_ok = e.status_of(Estimator::named("exp-fit")) == hierax::timescale::EstimateStatus::Ok;
+            let (tau, amplitude) = (e.raw_value("exp_tau_s"), e.raw_value("exp_amplitude"));
+            if tau.is_finite() {
+                assert_eq!(exp_ok, amplitude > 0.0 && bounds.contains(tau), "region {j}: {tau} {amplitude}");
             }
             assert_eq!(exp_ok, exp_tau[j].is_finite(), "region {j}");
             if exp_ok {
                 assert!(exp_tau[j] >= tr / 10.0 && exp_tau[j] <= n as f64 * tr);
             }
-            let knee_ok = e.status_of(Estimator::SpectralKnee) == hierax::timescale::EstimateStatus::Ok;
-            if let Some(k) = e.knee {
-                let inside = k.knee_hz >= k.band_fitted_hz.0 && k.knee_hz <= k.band_fitted_hz.1;
-                assert_eq!(knee_ok, inside && bounds.contains(k.tau_s), "region {j}: {k:?}");
+            let knee_ok =
+                e.status_of(Estimator::named("spectral-knee")) == hierax::timescale::EstimateStatus::Ok;
+            let (tau, knee_hz) = (e.raw_value("knee_tau_s"), e.raw_value("knee_hz"));
+            if tau.is_finite() {
+                let inside =
+                    knee_hz >= e.raw_value("knee_band_low_hz") && knee_hz <= e.raw_value("knee_band_high_hz");
+                assert_eq!(knee_ok, inside && bounds.contains(tau), "region {j}: {tau} {knee_hz}");
             }
             assert_eq!(knee_ok, knee_tau[j].is_finite());
             assert_eq!(e.ar1_status == hierax::timescale::EstimateStatus::Ok, ar1_tau[j].is_finite());
             exp_ok_n[j / per] += exp_ok as usize;
-            exp_implausible[j / per] += (e.status_of(Estimator::ExpFit)
+            exp_implausible[j / per] += (e.status_of(Estimator::named("exp-fit"))
                 == hierax::timescale::EstimateStatus::ImplausibleFit)
                 as usize;
         }
@@ -529,11 +537,11 @@ fn flags_count_only_the_estimators_in_use() {
     // fails must not be flagged for a consumer of `ips_tau_s`.
     use hierax::timescale::{column_source, ColumnSource, EstimateStatus, TimescaleError};
     for (col, src) in [
-        ("ips_tau_s", ColumnSource::Estimator(Estimator::InitialPositiveSum)),
-        ("acw50_interp_s", ColumnSource::Estimator(Estimator::Acw50)),
-        ("acw0_s", ColumnSource::Estimator(Estimator::Acw0)),
-        ("exp_tau_s", ColumnSource::Estimator(Estimator::ExpFit)),
-        ("knee_tau_s", ColumnSource::Estimator(Estimator::SpectralKnee)),
+        ("ips_tau_s", ColumnSource::Estimator(Estimator::named("initial-positive-sum"))),
+        ("acw50_interp_s", ColumnSource::Estimator(Estimator::named("acw50"))),
+        ("acw0_s", ColumnSource::Estimator(Estimator::named("acw0"))),
+        ("exp_tau_s", ColumnSource::Estimator(Estimator::named("exp-fit"))),
+        ("knee_tau_s", ColumnSource::Estimator(Estimator::named("spectral-knee"))),
         ("ar1_tau_corrected_s", ColumnSource::Ar1),
     ] {
         assert_eq!(column_source(col), Some(src), "{col}");
@@ -542,13 +550,13 @@ fn flags_count_only_the_estimators_in_use() {
     // The columns the per-subject job can link, and their estimators.
     use hierax::timescale::column_estimator;
     for (col, e) in [
-        ("ips_tau_s", Estimator::InitialPositiveSum),
-        ("acw50_s", Estimator::Acw50),
-        ("acw50_interp_s", Estimator::Acw50),
-        ("acw0_s", Estimator::Acw0),
-        ("acw0_interp_s", Estimator::Acw0),
-        ("exp_tau_s", Estimator::ExpFit),
-        ("knee_tau_s", Estimator::SpectralKnee),
+        ("ips_tau_s", Estimator::named("initial-positive-sum")),
+        ("acw50_s", Estimator::named("acw50")),
+        ("acw50_interp_s", Estimator::named("acw50")),
+        ("acw0_s", Estimator::named("acw0")),
+        ("acw0_interp_s", Estimator::named("acw0")),
+        ("exp_tau_s", Estimator::named("exp-fit")),
+        ("knee_tau_s", Estimator::named("spectral-knee")),
     ] {
         assert_eq!(column_estimator(col), Some(e), "{col}");
     }
@@ -569,8 +577,8 @@ fn flags_count_only_the_estimators_in_use() {
     let names: Vec<String> = (0..60).map(|j| format!("r{j}")).collect();
     let p = TimescaleParams::new(tr);
     let res = estimate_timescales(data.view(), &names, None, &[], &p.check(n).unwrap()).unwrap();
-    let ips = ColumnSource::Estimator(Estimator::InitialPositiveSum);
-    let knee = ColumnSource::Estimator(Estimator::SpectralKnee);
+    let ips = ColumnSource::Estimator(Estimator::named("initial-positive-sum"));
+    let knee = ColumnSource::Estimator(Estimator::named("spectral-knee"));
     // Naive count, straight from the per-region statuses.
     let naive = |srcs: &[ColumnSource]| {
         res.regions

@@ -21,9 +21,16 @@ pub struct JobOptions {
     #[arg(long)]
     pub descending: bool,
 
-    /// Timescale column that enters the link: ips_tau_s, acw50_s, acw50_interp_s, acw0_s, acw0_interp_s,
-    /// exp_tau_s or knee_tau_s.
-    #[arg(long, default_value = "ips_tau_s", value_name = "COLUMN")]
+    // The help lists every estimator's timescale columns, from the registry.
+    #[arg(
+        long,
+        default_value = "ips_tau_s",
+        value_name = "COLUMN",
+        help = format!(
+            "Timescale column that enters the link: one of {}",
+            hierax::subject::stages::timescale_columns().join(", ")
+        )
+    )]
     pub timescale: String,
 
     /// Censor frames whose framewise displacement exceeds this (mm); needs --confounds in `subject`.

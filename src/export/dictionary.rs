@@ -53,6 +53,22 @@ pub fn markdown() -> String {
         }
         let _ = writeln!(s);
     }
+    let _ = writeln!(s, "## Timescale estimators\n");
+    let _ = writeln!(
+        s,
+        "The `{{estimator columns}}` of `timescales` (from `src/timescale/registry.rs`). A timescale column \
+         (unit s) is reported only when its status is ok; the other columns are the fit's parameters, \
+         shown whenever the fit converged so the reason for a flag can be read. With \
+         `--bias-correction ar1`, `ar1_tau_s`, `ar1_tau_corrected_s` and `ar1_status` follow.\n"
+    );
+    let _ = writeln!(s, "| estimator | status prefix | column | unit | meaning |\n|---|---|---|---|---|");
+    for d in crate::timescale::REGISTRY {
+        for c in d.timescales.iter().chain(d.details) {
+            let _ =
+                writeln!(s, "| `{}` | `{}` | `{}` | {} | {} |", d.name, d.prefix, c.name, c.unit, c.meaning);
+        }
+    }
+    let _ = writeln!(s);
     let _ = writeln!(s, "## Outcomes\n");
     let _ = writeln!(
         s,

@@ -161,7 +161,7 @@ pub const TIMESCALES: TableDef = TableDef {
         c("status", "-", "ok, or the region's problem, or estimator:status items for the estimators that failed"),
         c("n_valid_frames", "1", "frames used after censoring"),
         c("lag1_acf", "1", "lag-1 sample autocorrelation (statsmodels acf(adjusted=False) convention)"),
-        c("{estimator columns}", "s", "each estimator's timescale (ips_tau_s, acw50_s, acw50_interp_s, acw0_s, acw0_interp_s, exp_tau_s, knee_tau_s) with its fit parameters and a <prefix>_status column; NaN always comes with a non-ok status"),
+        c("{estimator columns}", "as listed", "each selected estimator's columns (see *Timescale estimators* below), with its bootstrap standard error beside each timescale when bootstrapped (`ips_tau_s` -> `ips_tau_se_s`), then its `<prefix>_status`; a timescale is NaN exactly when its status is not ok"),
     ],
 };
 

@@ -133,7 +133,7 @@ impl SubjectConfig {
             super::stages::timescale_column_estimator(&self.timescale_column).is_some(),
             "timescale_column",
             &self.timescale_column,
-            format!("one of {}", super::stages::TIMESCALE_COLUMNS.join(", ")),
+            format!("one of {}", super::stages::timescale_columns().join(", ")),
         )?;
         let asymmetry_is_potential = !self.directed && drivers_are_uniform(&self.system.drivers);
         let valid = ValidSubjectConfig { raw: self.clone(), asymmetry_is_potential };

@@ -20,9 +20,11 @@ use rand::SeedableRng;
 use rand_chacha::ChaCha20Rng;
 use rayon::prelude::*;
 
-/// The timescale columns the job can link.
-pub const TIMESCALE_COLUMNS: [&str; 7] =
-    ["ips_tau_s", "acw50_s", "acw50_interp_s", "acw0_s", "acw0_interp_s", "exp_tau_s", "knee_tau_s"];
+/// The timescale columns the job can link: every estimator's, from the
+/// registry (`ips_tau_s`, `acw50_s`, ..., `knee_tau_s`).
+pub fn timescale_columns() -> Vec<&'static str> {
+    Estimator::ALL.into_iter().flat_map(|e| ColumnSource::Estimator(e).columns()).collect()
+}
 
 /// The estimator behind a timescale column name (the timescale module's one mapping).
 pub fn timescale_column_estimator(column: &str) -> Option<Estimator> {
@@ -72,7 +74,7 @@ pub fn timescales(s: &LoadedSubject, cfg: &ValidSubjectConfig) -> Result<Timesca
             SubjectError::Timescales { input, source }
         })?;
     let estimator = timescale_column_estimator(&p.timescale_column).ok_or_else(|| {
-        crate::param::ParamError::new("timescale_column", &p.timescale_column, TIMESCALE_COLUMNS.join(", "))
+        crate::param::ParamError::new("timescale_column", &p.timescale_column, timescale_columns().join(", "))
     })?;
     let tau = result
         .column_values(&p.timescale_column)

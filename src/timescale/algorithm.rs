@@ -2,12 +2,10 @@
 //! bootstrap, one region at a time, regions in parallel blocks.
 
 use super::acf::AcfPlan;
-use super::estimators::{
-    ar1_timescale, autocorrelation_window, check_exp_fit, check_knee_fit, fit_exp_decay, fit_spectral_knee,
-    initial_positive_sum, marriott_pope_lag1, EstimateStatus, ExpFit, KneeFit, TauBounds,
-};
+use super::estimators::{ar1_timescale, marriott_pope_lag1, EstimateStatus, TauBounds};
 use super::params::{BiasCorrection, Estimator, ValidTimescaleParams};
 use super::preprocess::{Confound, NuisanceModel};
+use super::registry::{self, EstimatorInput};
 use super::welch::{welch_segment_default, WelchPlan};
 use super::TimescaleError;
 use crate::io::table::{Column, Table};
@@ -62,14 +60,10 @@ pub enum ColumnSource {
 
 impl ColumnSource {
     /// The timescale columns (seconds) this source fills, in table order.
-    pub fn columns(self) -> &'static [&'static str] {
+    pub fn columns(self) -> Vec<&'static str> {
         match self {
-            ColumnSource::Estimator(Estimator::InitialPositiveSum) => &["ips_tau_s"],
-            ColumnSource::Estimator(Estimator::Acw50) => &["acw50_s", "acw50_interp_s"],
-            ColumnSource::Estimator(Estimator::Acw0) => &["acw0_s", "acw0_interp_s"],
-            ColumnSource::Estimator(Estimator::ExpFit) => &["exp_tau_s"],
-            ColumnSource::Estimator(Estimator::SpectralKnee) => &["knee_tau_s"],
-            ColumnSource::Ar1 => &["ar1_tau_s", "ar1_tau_corrected_s"],
+            ColumnSource::Estimator(e) => e.def().timescales.iter().map(|c| c.name).collect(),
+            ColumnSource::Ar1 => vec!["ar1_tau_s", "ar1_tau_corrected_s"],
         }
     }
 
@@ -81,15 +75,16 @@ impl ColumnSource {
         }
     }
 
-    /// Every source, in table order.
-    pub const ALL: [ColumnSource; 6] = [
-        ColumnSource::Estimator(Estimator::InitialPositiveSum),
-        ColumnSource::Estimator(Estimator::Acw50),
-        ColumnSource::Estimator(Estimator::Acw0),
-        ColumnSource::Estimator(Estimator::ExpFit),
-        ColumnSource::Estimator(Estimator::SpectralKnee),
-        ColumnSource::Ar1,
-    ];
+    /// Every source, in table order: the estimators, then AR(1).
+    pub const ALL: [ColumnSource; Estimator::COUNT + 1] = {
+        let mut all = [ColumnSource::Ar1; Estimator::COUNT + 1];
+        let mut i = 0;
+        while i < Estimator::COUNT {
+            all[i] = ColumnSource::Estimator(Estimator::ALL[i]);
+            i += 1;
+        }
+        all
+    };
 }
 
 /// The source of timescale column `column` (`ips_tau_s`, `acw50_interp_s`,
@@ -100,13 +95,13 @@ pub fn column_source(column: &str) -> Option<ColumnSource> {
     ColumnSource::ALL.into_iter().find(|s| s.columns().contains(&column))
 }
 
-/// The [`Estimator`] behind timescale column `column`: `ips_tau_s` →
-/// initial positive sum; `acw50_s`, `acw50_interp_s` → ACW-50; `acw0_s`,
-/// `acw0_interp_s` → ACW-0; `exp_tau_s` → exponential fit; `knee_tau_s` →
-/// spectral knee. `None` for any other name, including the AR(1) columns
-/// (their source is [`ColumnSource::Ar1`], see [`column_source`]). A
-/// consumer reads the column with [`TimescaleResult::column_values`] (NaN
-/// unless the region and this estimator are ok) and counts its flags with
+/// The [`Estimator`] behind timescale column `column` (`ips_tau_s` →
+/// initial positive sum, `acw50_interp_s` → ACW-50, ...; each estimator's
+/// columns are in its [`EstimatorDef`](super::registry::EstimatorDef)).
+/// `None` for any other name, including the AR(1) columns (their source is
+/// [`ColumnSource::Ar1`], see [`column_source`]). A consumer reads the
+/// column with [`TimescaleResult::column_values`] (NaN unless the region and
+/// this estimator are ok) and counts its flags with
 /// [`TimescaleResult::n_flagged_for`]`(&[ColumnSource::Estimator(e)])`.
 pub fn column_estimator(column: &str) -> Option<Estimator> {
     match column_source(column)? {
@@ -116,58 +111,51 @@ pub fn column_estimator(column: &str) -> Option<Estimator> {
 }
 
 /// Every estimate for one region (NaN where not selected or failed; the
-/// matching status says which). The fits are kept even when their status is
-/// [`EstimateStatus::ImplausibleFit`], for inspection; [`RegionEstimates::value`]
-/// and every table report a timescale only when its status is ok.
-#[derive(Clone, Debug, PartialEq, Serialize)]
+/// matching status says which). Fit parameters are kept even when their
+/// status is [`EstimateStatus::ImplausibleFit`], for inspection;
+/// [`RegionEstimates::value`] and every table report a timescale only when
+/// its status is ok.
+#[derive(Clone, Debug, PartialEq)]
 pub struct RegionEstimates {
     /// Lag-1 autocorrelation.
     pub lag1: f64,
-    /// Initial-positive-sum timescale, s.
-    pub ips_s: f64,
-    /// ACW-50 at the first lag at or below 0.5, s.
-    pub acw50_s: f64,
-    /// ACW-50 interpolated between lags, s.
-    pub acw50_interp_s: f64,
-    /// ACW-0 at the first lag at or below 0, s.
-    pub acw0_s: f64,
-    /// ACW-0 interpolated, s.
-    pub acw0_interp_s: f64,
-    /// Exponential fit, when it converged (check its status before use).
-    pub exp: Option<ExpFit>,
-    /// Spectral knee fit, when it converged (check its status before use).
-    pub knee: Option<KneeFit>,
+    /// Every estimator's columns (timescales, then details), estimators in
+    /// table order, each from [`registry::offset`] of its position.
+    values: [f64; registry::SLOTS],
+    /// Status per estimator, in [`Estimator::ALL`] order.
+    status: [EstimateStatus; Estimator::COUNT],
     /// AR(1) timescale from the lag-1 ACF, s (with `--bias-correction ar1`).
     pub ar1_tau_s: f64,
     /// The same after the Marriott–Pope correction, s.
     pub ar1_tau_corrected_s: f64,
-    /// Status per estimator, in [`Estimator::ALL`] order.
-    pub status: [EstimateStatus; 5],
     /// Status of the AR(1) columns.
     pub ar1_status: EstimateStatus,
+}
+
+/// Where a column's value lives: its slot among all estimators' values.
+fn slot_of(column: &str) -> Option<usize> {
+    Estimator::ALL.into_iter().find_map(|e| {
+        let d = e.def();
+        let k = d.timescales.iter().chain(d.details).position(|c| c.name == column)?;
+        Some(registry::offset(e.index()) + k)
+    })
 }
 
 impl RegionEstimates {
     fn empty(status: EstimateStatus) -> Self {
         RegionEstimates {
             lag1: f64::NAN,
-            ips_s: f64::NAN,
-            acw50_s: f64::NAN,
-            acw50_interp_s: f64::NAN,
-            acw0_s: f64::NAN,
-            acw0_interp_s: f64::NAN,
-            exp: None,
-            knee: None,
+            values: [f64::NAN; registry::SLOTS],
+            status: [status; Estimator::COUNT],
             ar1_tau_s: f64::NAN,
             ar1_tau_corrected_s: f64::NAN,
-            status: [status; 5],
             ar1_status: status,
         }
     }
 
     /// Status of estimator `e`.
     pub fn status_of(&self, e: Estimator) -> EstimateStatus {
-        self.status[Estimator::ALL.iter().position(|x| *x == e).unwrap_or(0)]
+        self.status[e.index()]
     }
 
     /// Status of a column source.
@@ -178,20 +166,14 @@ impl RegionEstimates {
         }
     }
 
-    /// The computed value of timescale column `column`, whatever its status
-    /// (NaN for an unknown column or a fit that did not converge).
+    /// The computed value of column `column` (a timescale, or a fit
+    /// parameter such as `exp_amplitude`), whatever its status (NaN for an
+    /// unknown column or a fit that did not converge).
     pub fn raw_value(&self, column: &str) -> f64 {
         match column {
-            "ips_tau_s" => self.ips_s,
-            "acw50_s" => self.acw50_s,
-            "acw50_interp_s" => self.acw50_interp_s,
-            "acw0_s" => self.acw0_s,
-            "acw0_interp_s" => self.acw0_interp_s,
-            "exp_tau_s" => self.exp.map_or(f64::NAN, |f| f.tau_s),
-            "knee_tau_s" => self.knee.map_or(f64::NAN, |f| f.tau_s),
             "ar1_tau_s" => self.ar1_tau_s,
             "ar1_tau_corrected_s" => self.ar1_tau_corrected_s,
-            _ => f64::NAN,
+            _ => slot_of(column).map_or(f64::NAN, |i| self.values[i]),
         }
     }
 
@@ -208,7 +190,28 @@ impl RegionEstimates {
     /// order, as `(column, value)`, each NaN unless its status is ok. These
     /// are the quantities bootstrapped.
     pub fn primary(&self, p: &ValidTimescaleParams) -> Vec<(&'static str, f64)> {
-        selected_sources(p).into_iter().flat_map(|s| s.columns()).map(|&c| (c, self.value(c))).collect()
+        selected_sources(p).into_iter().flat_map(|s| s.columns()).map(|c| (c, self.value(c))).collect()
+    }
+}
+
+/// Serialised under the tables' names: `lag1`, every column, and each
+/// `<prefix>_status`.
+impl Serialize for RegionEstimates {
+    fn serialize<S: serde::Serializer>(&self, s: S) -> Result<S::Ok, S::Error> {
+        use serde::ser::SerializeMap;
+        let mut m = s.serialize_map(None)?;
+        m.serialize_entry("lag1", &self.lag1)?;
+        for e in Estimator::ALL {
+            let d = e.def();
+            for c in d.timescales.iter().chain(d.details) {
+                m.serialize_entry(c.name, &self.raw_value(c.name))?;
+            }
+            m.serialize_entry(&format!("{}_status", d.prefix), &self.status_of(e))?;
+        }
+        m.serialize_entry("ar1_tau_s", &self.ar1_tau_s)?;
+        m.serialize_entry("ar1_tau_corrected_s", &self.ar1_tau_corrected_s)?;
+        m.serialize_entry("ar1_status", &self.ar1_status)?;
+        m.end()
     }
 }
 
@@ -265,7 +268,7 @@ impl TimescaleResult {
 
     /// The timescale columns (seconds) of this result, in table order.
     pub fn timescale_columns(&self) -> Vec<&'static str> {
-        self.selected_sources().into_iter().flat_map(|s| s.columns().iter().copied()).collect()
+        self.selected_sources().into_iter().flat_map(|s| s.columns()).collect()
     }
 
     fn source_of(&self, column: &str) -> Result<ColumnSource, TimescaleError> {
@@ -346,7 +349,7 @@ impl TimescaleResult {
             .filter(|&&s| r.estimates.status_of_source(s) != EstimateStatus::Ok)
             .map(|&s| format!("{}:{}", s.prefix(), r.estimates.status_of_source(s).as_str()))
             .collect();
-        let cols: Vec<&str> = selected.into_iter().flat_map(|s| s.columns().iter().copied()).collect();
+        let cols: Vec<&str> = selected.into_iter().flat_map(|s| s.columns()).collect();
         let undefined_se = cols
             .iter()
             .zip(&r.se)
@@ -386,7 +389,7 @@ impl TimescaleResult {
             .with("lag1_acf", f(&|r| r.estimates.lag1));
         let names = self.timescale_columns();
         for src in self.selected_sources() {
-            for &col in src.columns() {
+            for col in src.columns() {
                 t = t.with(col, f(&|r| r.estimates.value(col)));
                 if self.params.bootstrap > 0 {
                     let i = names.iter().position(|n| *n == col).unwrap_or(0);
@@ -397,23 +400,10 @@ impl TimescaleResult {
                     );
                 }
             }
-            match src {
-                ColumnSource::Estimator(Estimator::ExpFit) => {
-                    let x = |g: fn(&ExpFit) -> f64| {
-                        f(&move |r: &RegionResult| r.estimates.exp.as_ref().map_or(f64::NAN, g))
-                    };
-                    t = t.with("exp_amplitude", x(|e| e.amplitude)).with("exp_offset", x(|e| e.offset));
-                    t = t
-                        .with("exp_first_lag", x(|e| e.lags.0 as f64))
-                        .with("exp_last_lag", x(|e| e.lags.1 as f64));
+            if let ColumnSource::Estimator(e) = src {
+                for c in e.def().details {
+                    t = t.with(c.name, f(&|r| r.estimates.raw_value(c.name)));
                 }
-                ColumnSource::Estimator(Estimator::SpectralKnee) => {
-                    let x = |g: fn(&KneeFit) -> f64| {
-                        f(&move |r: &RegionResult| r.estimates.knee.as_ref().map_or(f64::NAN, g))
-                    };
-                    t = t.with("knee_hz", x(|k| k.knee_hz)).with("knee_exponent", x(|k| k.exponent));
-                }
-                _ => {}
             }
             t = t.with(
                 &format!("{}_status", src.prefix()),
@@ -538,7 +528,7 @@ pub fn estimate_timescales(
 
     let mut plan = AcfPlan::new(n, params.max_lag)?;
     let pairs = plan.pair_counts(valid);
-    let knee = params.has(Estimator::SpectralKnee);
+    let knee = params.estimators().iter().any(|e| e.def().needs_spectrum);
     let welch_segment_frames = knee
         .then(|| params.welch_segment.unwrap_or_else(|| welch_segment_default(n, censored.then_some(valid))));
     let welch = match welch_segment_frames {
@@ -744,7 +734,7 @@ fn estimate_one(
     };
     let acf = &ws.acf;
     if c0.is_nan() || c0 <= 0.0 {
-        e.status = [EstimateStatus::NonFiniteInput; 5];
+        e.status = [EstimateStatus::NonFiniteInput; Estimator::COUNT];
         e.ar1_status = EstimateStatus::NonFiniteInput;
         return e;
     }
@@ -753,52 +743,25 @@ fn estimate_one(
     // pairs[0] is the number of valid frames of this (possibly resampled) series.
     let n_valid = pairs[0] as usize;
     let bounds = TauBounds::new(tr, n_valid);
-    let set = |e: &mut RegionEstimates, est: Estimator, s: EstimateStatus| {
-        let i = Estimator::ALL.iter().position(|x| *x == est).unwrap_or(0);
-        e.status[i] = s;
+    // The Welch spectrum once, for the estimators that read it.
+    let spectrum_used = match ws.welch.as_mut() {
+        Some(w) if p.estimators.iter().any(|e| e.def().needs_spectrum) => {
+            w.density_into(x, if masked { Some(valid) } else { None }, &mut ws.psd)
+        }
+        _ => 0,
     };
-    let mut acw50_interp = f64::NAN;
+    let input = EstimatorInput {
+        acf,
+        tr_s: tr,
+        bounds,
+        params: p,
+        spectrum: (spectrum_used > 0).then_some((ws.freqs.as_slice(), ws.psd.as_slice())),
+    };
     for &est in &p.estimators {
-        let status = match est {
-            Estimator::InitialPositiveSum => initial_positive_sum(acf, tr).map(|v| e.ips_s = v),
-            Estimator::Acw50 => autocorrelation_window(acf, 0.5, tr).map(|(a, b)| {
-                e.acw50_s = a;
-                e.acw50_interp_s = b;
-                acw50_interp = b;
-            }),
-            Estimator::Acw0 => autocorrelation_window(acf, 0.0, tr).map(|(a, b)| {
-                e.acw0_s = a;
-                e.acw0_interp_s = b;
-            }),
-            Estimator::ExpFit => {
-                // Start τ from the interpolated half-decay lag (exact for a pure
-                // exponential: ρ = 1/2 at τ ln 2).
-                let start = if acw50_interp.is_finite() {
-                    acw50_interp
-                } else {
-                    autocorrelation_window(acf, 0.5, tr).map(|v| v.1).unwrap_or(tr)
-                } / std::f64::consts::LN_2;
-                fit_exp_decay(acf, tr, p.fit_lags, start).and_then(|f| {
-                    e.exp = Some(f);
-                    check_exp_fit(&f, bounds)
-                })
-            }
-            Estimator::SpectralKnee => {
-                let used = match ws.welch.as_mut() {
-                    Some(w) => w.density_into(x, if masked { Some(valid) } else { None }, &mut ws.psd),
-                    None => 0,
-                };
-                if used == 0 {
-                    Err(EstimateStatus::TooFewPoints)
-                } else {
-                    fit_spectral_knee(&ws.freqs, &ws.psd, p.knee_band_hz).and_then(|f| {
-                        e.knee = Some(f);
-                        check_knee_fit(&f, bounds)
-                    })
-                }
-            }
-        };
-        set(&mut e, est, status.err().unwrap_or(EstimateStatus::Ok));
+        let d = est.def();
+        let at = registry::offset(est.index());
+        let status = (d.estimate)(&input, &mut e.values[at..at + d.slots()]);
+        e.status[est.index()] = status.err().unwrap_or(EstimateStatus::Ok);
     }
     if p.bias_correction == BiasCorrection::Ar1 {
         let r = ar1_timescale(e.lag1, tr).and_then(|t| {

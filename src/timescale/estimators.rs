@@ -2,6 +2,7 @@
 //! spectral knee, from the Welch spectrum). All results are in seconds.
 
 use super::lm::{levenberg_marquardt, LmOptions};
+use super::registry::{col, EstimatorDef};
 use serde::Serialize;
 
 /// Outcome of one estimator for one region.
@@ -406,6 +407,106 @@ pub fn marriott_pope_lag1(rho1: f64, n: usize) -> f64 {
     let n = n as f64;
     (n * rho1 + 1.0) / (n - 3.0)
 }
+
+// Definitions: each estimator's name, columns and dispatch, read by
+// [`REGISTRY`](super::registry::REGISTRY).
+
+/// The initial positive sum ([`initial_positive_sum`]).
+pub const INITIAL_POSITIVE_SUM: EstimatorDef = EstimatorDef {
+    name: "initial-positive-sum",
+    prefix: "ips",
+    summary: "Sum of the initial positive ACF x TR (Watanabe, Rees & Masuda 2019, eLife)",
+    timescales: &[col(
+        "ips_tau_s",
+        "s",
+        "TR x sum of the ACF from lag 1 to the lag before its first value <= 0",
+    )],
+    details: &[],
+    needs_spectrum: false,
+    estimate: |x, out| {
+        out[0] = initial_positive_sum(x.acf, x.tr_s)?;
+        Ok(())
+    },
+};
+
+/// ACW-50 ([`autocorrelation_window`] at 0.5).
+pub const ACW50: EstimatorDef = EstimatorDef {
+    name: "acw50",
+    prefix: "acw50",
+    summary: "Lag where the ACF first drops to 0.5 (Honey et al. 2012)",
+    timescales: &[
+        col("acw50_s", "s", "first lag with ACF <= 0.5, x TR"),
+        col("acw50_interp_s", "s", "the same, linearly interpolated between lags"),
+    ],
+    details: &[],
+    needs_spectrum: false,
+    estimate: |x, out| {
+        (out[0], out[1]) = autocorrelation_window(x.acf, 0.5, x.tr_s)?;
+        Ok(())
+    },
+};
+
+/// ACW-0 ([`autocorrelation_window`] at 0).
+pub const ACW0: EstimatorDef = EstimatorDef {
+    name: "acw0",
+    prefix: "acw0",
+    summary: "Lag where the ACF first drops to 0 (Golesorkhi et al. 2021)",
+    timescales: &[
+        col("acw0_s", "s", "first lag with ACF <= 0, x TR"),
+        col("acw0_interp_s", "s", "the same, linearly interpolated between lags"),
+    ],
+    details: &[],
+    needs_spectrum: false,
+    estimate: |x, out| {
+        (out[0], out[1]) = autocorrelation_window(x.acf, 0.0, x.tr_s)?;
+        Ok(())
+    },
+};
+
+/// The exponential-decay fit ([`fit_exp_decay`], checked by [`check_exp_fit`]).
+pub const EXP_FIT: EstimatorDef = EstimatorDef {
+    name: "exp-fit",
+    prefix: "exp",
+    summary: "Exponential decay fit a(exp(-k TR/tau) + b) to the ACF (Murray et al. 2014)",
+    timescales: &[col("exp_tau_s", "s", "tau of the fitted decay a(exp(-k TR/tau) + b)")],
+    details: &[
+        col("exp_amplitude", "1", "fitted amplitude a (a plausible fit has a > 0)"),
+        col("exp_offset", "1", "fitted offset b"),
+        col("exp_first_lag", "lag", "first ACF lag fitted"),
+        col("exp_last_lag", "lag", "last ACF lag fitted"),
+    ],
+    needs_spectrum: false,
+    estimate: |x, out| {
+        // Start tau from the interpolated half-decay lag (exact for a pure exponential: the ACF
+        // is 1/2 at tau ln 2).
+        let start = autocorrelation_window(x.acf, 0.5, x.tr_s).map(|v| v.1).unwrap_or(x.tr_s)
+            / std::f64::consts::LN_2;
+        let f = fit_exp_decay(x.acf, x.tr_s, *x.params.fit_lags(), start)?;
+        out.copy_from_slice(&[f.tau_s, f.amplitude, f.offset, f.lags.0 as f64, f.lags.1 as f64]);
+        check_exp_fit(&f, x.bounds)
+    },
+};
+
+/// The spectral knee ([`fit_spectral_knee`], checked by [`check_knee_fit`]).
+pub const SPECTRAL_KNEE: EstimatorDef = EstimatorDef {
+    name: "spectral-knee",
+    prefix: "knee",
+    summary: "Knee of the Welch power spectrum, tau = 1/(2 pi f_knee) (Gao et al. 2020)",
+    timescales: &[col("knee_tau_s", "s", "1/(2 pi f_knee) of the fitted Welch spectrum")],
+    details: &[
+        col("knee_hz", "Hz", "knee frequency f_knee = k^(1/chi)"),
+        col("knee_exponent", "1", "fitted exponent chi"),
+        col("knee_band_low_hz", "Hz", "lowest frequency fitted (a plausible knee lies inside the band)"),
+        col("knee_band_high_hz", "Hz", "highest frequency fitted"),
+    ],
+    needs_spectrum: true,
+    estimate: |x, out| {
+        let (freqs, psd) = x.spectrum.ok_or(EstimateStatus::TooFewPoints)?;
+        let f = fit_spectral_knee(freqs, psd, x.params.knee_band_hz())?;
+        out.copy_from_slice(&[f.tau_s, f.knee_hz, f.exponent, f.band_fitted_hz.0, f.band_fitted_hz.1]);
+        check_knee_fit(&f, x.bounds)
+    },
+};
 
 #[cfg(test)]
 mod tests {

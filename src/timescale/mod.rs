@@ -14,7 +14,8 @@
 //! frames), which reduces to the plain ACF when nothing is censored; the
 //! reasons for this normalisation are in [`AcfPlan::masked_acf_into`].
 //!
-//! **Estimators** ([`estimators`]), all in seconds (TR `tr_s` in seconds):
+//! **Estimators** ([`estimators`], each defined once in the [`registry`]),
+//! all in seconds (TR `tr_s` in seconds):
 //! * initial positive sum $\mathrm{TR}\sum_{k=1}^{K-1}\hat\rho_k$, $K$ the
 //!   first lag with $\hat\rho_K\le0$ (Watanabe, Rees & Masuda 2019, eLife
 //!   8:e42256; journal and article number from memory);
@@ -66,6 +67,7 @@ pub mod estimators;
 pub mod lm;
 pub mod params;
 pub mod preprocess;
+pub mod registry;
 pub mod welch;
 
 pub use acf::{autocorrelation, masked_autocorrelation, AcfPlan};
@@ -77,4 +79,5 @@ pub use error::TimescaleError;
 pub use estimators::{EstimateStatus, ExpFit, FitLags, KneeFit, TauBounds};
 pub use params::{BiasCorrection, Estimator, TimescaleParams, ValidTimescaleParams};
 pub use preprocess::{censor_from_displacement, Confound, NuisanceModel, NuisanceSpec};
+pub use registry::{EstimatorColumn, EstimatorDef, EstimatorInput, REGISTRY};
 pub use welch::{segment_starts, welch_density, welch_segment_default, WelchPlan};

@@ -3,58 +3,115 @@
 
 use super::estimators::FitLags;
 use super::preprocess::NuisanceSpec;
+use super::registry::{EstimatorDef, REGISTRY};
 use super::TimescaleError;
 use crate::param::ParamError;
 use serde::Serialize;
 
-/// A timescale estimator.
-#[derive(Clone, Copy, Debug, PartialEq, Eq, Hash, PartialOrd, Ord, Serialize)]
-#[serde(rename_all = "kebab-case")]
-#[cfg_attr(feature = "cli", derive(clap::ValueEnum))]
-#[non_exhaustive]
-pub enum Estimator {
-    /// Sum of the initial positive ACF x TR (Watanabe, Rees & Masuda 2019, eLife).
-    InitialPositiveSum,
-    /// Lag where the ACF first drops to 0.5 (Honey et al. 2012).
-    Acw50,
-    /// Lag where the ACF first drops to 0 (Golesorkhi et al. 2021).
-    Acw0,
-    /// Exponential decay fit a(exp(-k TR/tau) + b) to the ACF (Murray et al. 2014).
-    ExpFit,
-    /// Knee of the Welch power spectrum, tau = 1/(2 pi f_knee) (Gao et al. 2020).
-    SpectralKnee,
-}
+/// A timescale estimator: a handle on its definition in
+/// [`REGISTRY`], ordered as the tables are.
+/// Named by [`Estimator::named`] (`Estimator::named("acw50")`) or looked up
+/// by [`Estimator::from_name`].
+#[derive(Clone, Copy, PartialEq, Eq, Hash, PartialOrd, Ord)]
+pub struct Estimator(u8);
 
 impl Estimator {
+    /// How many estimators there are.
+    pub const COUNT: usize = REGISTRY.len();
+
     /// All estimators, in table order.
-    pub const ALL: [Estimator; 5] = [
-        Estimator::InitialPositiveSum,
-        Estimator::Acw50,
-        Estimator::Acw0,
-        Estimator::ExpFit,
-        Estimator::SpectralKnee,
-    ];
+    pub const ALL: [Estimator; Self::COUNT] = {
+        let mut all = [Estimator(0); Self::COUNT];
+        let mut i = 0;
+        while i < Self::COUNT {
+            all[i] = Estimator(i as u8);
+            i += 1;
+        }
+        all
+    };
+
+    /// The estimator called `name`.
+    ///
+    /// # Panics
+    /// When no estimator has that name; in a `const` this is a compile error.
+    pub const fn named(name: &str) -> Estimator {
+        let mut i = 0;
+        while i < Self::COUNT {
+            if const_str_eq(REGISTRY[i].name, name) {
+                return Estimator(i as u8);
+            }
+            i += 1;
+        }
+        panic!("no timescale estimator of that name")
+    }
+
+    /// The estimator called `name`, if any.
+    pub fn from_name(name: &str) -> Option<Estimator> {
+        Self::ALL.into_iter().find(|e| e.as_str() == name)
+    }
+
+    /// Its definition.
+    pub fn def(self) -> &'static EstimatorDef {
+        REGISTRY[self.0 as usize]
+    }
+
+    /// Its position in table order.
+    pub(crate) fn index(self) -> usize {
+        self.0 as usize
+    }
 
     /// The short name used in tables and on the command line.
     pub fn as_str(self) -> &'static str {
-        match self {
-            Estimator::InitialPositiveSum => "initial-positive-sum",
-            Estimator::Acw50 => "acw50",
-            Estimator::Acw0 => "acw0",
-            Estimator::ExpFit => "exp-fit",
-            Estimator::SpectralKnee => "spectral-knee",
-        }
+        self.def().name
     }
 
     /// Column prefix in tables.
     pub fn prefix(self) -> &'static str {
-        match self {
-            Estimator::InitialPositiveSum => "ips",
-            Estimator::Acw50 => "acw50",
-            Estimator::Acw0 => "acw0",
-            Estimator::ExpFit => "exp",
-            Estimator::SpectralKnee => "knee",
+        self.def().prefix
+    }
+}
+
+const fn const_str_eq(a: &str, b: &str) -> bool {
+    let (a, b) = (a.as_bytes(), b.as_bytes());
+    if a.len() != b.len() {
+        return false;
+    }
+    let mut i = 0;
+    while i < a.len() {
+        if a[i] != b[i] {
+            return false;
         }
+        i += 1;
+    }
+    true
+}
+
+impl std::fmt::Debug for Estimator {
+    fn fmt(&self, f: &mut std::fmt::Formatter<'_>) -> std::fmt::Result {
+        f.write_str(self.as_str())
+    }
+}
+
+impl std::fmt::Display for Estimator {
+    fn fmt(&self, f: &mut std::fmt::Formatter<'_>) -> std::fmt::Result {
+        f.write_str(self.as_str())
+    }
+}
+
+impl Serialize for Estimator {
+    fn serialize<S: serde::Serializer>(&self, s: S) -> Result<S::Ok, S::Error> {
+        s.serialize_str(self.as_str())
+    }
+}
+
+/// The command line's value list comes from the registry.
+#[cfg(feature = "cli")]
+impl clap::ValueEnum for Estimator {
+    fn value_variants<'a>() -> &'a [Self] {
+        &Self::ALL
+    }
+    fn to_possible_value(&self) -> Option<clap::builder::PossibleValue> {
+        Some(clap::builder::PossibleValue::new(self.as_str()).help(self.def().summary))
     }
 }
 
@@ -189,7 +246,7 @@ impl TimescaleParams {
         }
         let welch_segment = self.welch_segment;
         let shortest = super::welch::WELCH_SEGMENT_MIN;
-        if estimators.contains(&Estimator::SpectralKnee) {
+        if estimators.iter().any(|e| e.def().needs_spectrum) {
             let given = welch_segment.unwrap_or(shortest);
             if !(shortest..=n_frames).contains(&given) {
                 return Err(bad(
