@@ -1,10 +1,10 @@
 //! `hierax surrogates`: spatial null maps (spin, variogram, Moran).
 
 use anyhow::Context;
-use clap::{Args, ValueEnum};
+use clap::Args;
 use hierax::hierarchy::{
     moran_surrogates, spin_surrogates, variogram_surrogates, MoranBasis, MoranMethod, MoranParams,
-    SphereLayout, SpinParams, VariogramModel, VariogramParams,
+    SphereLayout, SpinParams, SurrogateMethod, VariogramModel, VariogramParams,
 };
 use hierax::io::npy::write_npy_f64;
 use hierax::io::provenance::{InputRecord, Provenance};
@@ -13,25 +13,6 @@ use hierax::io::{read_array, validate, InputSpec};
 use ndarray::Array2;
 use std::path::PathBuf;
 use std::process::ExitCode;
-
-#[derive(Debug, Clone, Copy, ValueEnum)]
-enum Method {
-    /// Rotations of parcel centroids on the sphere (needs --sphere-coords).
-    Spin,
-    /// Variogram-matched surrogates (needs --distances).
-    Variogram,
-    /// Moran spectral randomisation (needs --weights, or --distances for inverse-distance weights).
-    Moran,
-}
-
-#[derive(Debug, Clone, Copy, ValueEnum)]
-enum MoranKind {
-    /// Random signs of the coefficients (Moran's I exact).
-    Singleton,
-    /// Random rotations of coefficient pairs with neighbouring eigenvalues, paired from the largest
-    /// down; the odd one out, at the smallest |eigenvalue|, gets a random sign (Moran's I approximate).
-    Pair,
-}
 
 /// Make COUNT spatially constrained surrogate maps of MAP with a fixed seed.
 ///
@@ -70,7 +51,7 @@ pub struct SurrogatesArgs {
 
     /// Surrogate method.
     #[arg(long, value_enum)]
-    method: Method,
+    method: SurrogateMethod,
 
     /// Parcel centroids on the sphere, PATH[:KEY], regions x 3 (x = left-right axis).
     #[arg(long, value_name = "SPEC", required_if_eq("method", "spin"))]
@@ -94,8 +75,8 @@ pub struct SurrogatesArgs {
     weights: Option<String>,
 
     /// Moran randomisation variant.
-    #[arg(long, value_enum, default_value_t = MoranKind::Singleton)]
-    moran_method: MoranKind,
+    #[arg(long, value_enum, default_value_t = MoranMethod::Singleton)]
+    moran_method: MoranMethod,
 
     /// Number of surrogates.
     #[arg(long, value_name = "M")]
@@ -117,7 +98,7 @@ fn load_matrix(raw: &str) -> anyhow::Result<(InputSpec, Array2<f64>)> {
 }
 
 pub fn run(args: SurrogatesArgs) -> anyhow::Result<ExitCode> {
-    if args.hemisphere.is_some() && !matches!(args.method, Method::Spin) {
+    if args.hemisphere.is_some() && !matches!(args.method, SurrogateMethod::Spin) {
         anyhow::bail!("--hemisphere applies to --method spin only");
     }
     let map_spec = InputSpec::parse(&args.map)?;
@@ -128,7 +109,7 @@ pub fn run(args: SurrogatesArgs) -> anyhow::Result<ExitCode> {
     let mut inputs = vec![InputRecord::of_loaded("map", &la)?];
     let method_table: Option<(&str, Table)>;
     let (surrogates, diagnostics, params) = match args.method {
-        Method::Spin => {
+        SurrogateMethod::Spin => {
             let raw = args.sphere_coords.as_deref().context("--method spin needs --sphere-coords")?;
             let (cspec, coords) = load_matrix(raw)?;
             let hemi = match &args.hemisphere {
@@ -164,7 +145,7 @@ pub fn run(args: SurrogatesArgs) -> anyhow::Result<ExitCode> {
             });
             (s.surrogates, diag, serde_json::to_value(p)?)
         }
-        Method::Variogram => {
+        SurrogateMethod::Variogram => {
             let raw = args.distances.as_deref().context("--method variogram needs --distances")?;
             let (dspec, d) = load_matrix(raw)?;
             if d.nrows() != n {
@@ -201,7 +182,7 @@ pub fn run(args: SurrogatesArgs) -> anyhow::Result<ExitCode> {
             });
             (s.surrogates, diag, serde_json::to_value(&p)?)
         }
-        Method::Moran => {
+        SurrogateMethod::Moran => {
             let raw = args.weights.as_deref().or(args.distances.as_deref());
             let raw =
                 raw.context("--method moran needs --weights (or --distances for inverse-distance weights)")?;
@@ -212,11 +193,7 @@ pub fn run(args: SurrogatesArgs) -> anyhow::Result<ExitCode> {
             }
             let basis = MoranBasis::new(&w).with_context(|| wspec.to_string())?;
             inputs.push(InputRecord::of("weights", &wspec)?);
-            let method = match args.moran_method {
-                MoranKind::Singleton => MoranMethod::Singleton,
-                MoranKind::Pair => MoranMethod::Pair,
-            };
-            let p = MoranParams { count: args.count, seed: args.seed, method };
+            let p = MoranParams { count: args.count, seed: args.seed, method: args.moran_method };
             let s = moran_surrogates(&values, &basis, &p).with_context(|| map_spec.to_string())?;
             let t = Table::new()
                 .with("surrogate", Column::I64((1..=p.count as i64).collect()))

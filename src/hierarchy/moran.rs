@@ -45,12 +45,14 @@ use serde::Serialize;
 /// How coefficients are randomised.
 #[derive(Clone, Copy, Debug, PartialEq, Eq, Serialize, Default)]
 #[serde(rename_all = "lowercase")]
+#[cfg_attr(feature = "cli", derive(clap::ValueEnum))]
 pub enum MoranMethod {
     /// Random signs; Moran's I exact.
     #[default]
     Singleton,
     /// Random rotations of pairs of eigenvectors with neighbouring
-    /// eigenvalues, from the largest down ([`moran_pairs`]); Moran's I approximate.
+    /// eigenvalues, paired from the largest down (with an odd count, the one left
+    /// at the smallest |eigenvalue| gets a random sign); Moran's I approximate.
     Pair,
 }
 
