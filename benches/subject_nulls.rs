@@ -75,7 +75,7 @@ fn rewire(w: &Array2<f64>, i: usize) -> Array2<f64> {
     rng.set_stream(1 + i as u64);
     let net = Network::new(w.view(), None, false).expect("valid network");
     let p = NullParams { swaps_per_edge: SWAPS_PER_EDGE, ..NullParams::default() };
-    randomise(NullModel::DegreeSwap, &net, &p, &mut rng).expect("valid network").0
+    randomise(NullModel::named("degree-swap"), &net, &p, &mut rng).expect("valid network").0
 }
 
 fn summarise_network(w: &Array2<f64>, p: &ValidSystemParams, x: &Array2<f64>, tau: &[f64]) -> SubjectSummary {

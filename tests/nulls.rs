@@ -82,7 +82,7 @@ fn normal(rng: &mut ChaCha8Rng) -> f64 {
 #[test]
 fn weight_models_are_calibrated_on_a_dense_weighted_graph_and_detect_a_planted_effect() {
     let n = 16;
-    for model in [NullModel::WeightPermutation, NullModel::LengthBinShuffle] {
+    for model in [NullModel::named("weight-permutation"), NullModel::named("length-bin-shuffle")] {
         let mut rng = ChaCha8Rng::seed_from_u64(21);
         let mut ps = Vec::new();
         for _ in 0..SEEDS {
@@ -115,7 +115,7 @@ fn directed_swaps_are_calibrated_on_a_directed_graph_and_detect_upward_weight() 
     for _ in 0..SEEDS {
         let h: Vec<f64> = (0..n).map(|_| normal(&mut rng)).collect();
         let w = directed_graph(n, &h, false, &mut rng);
-        ps.push(p_value(NullModel::DegreeSwap, &w, None, true, &|m| upward_flow(m, &h), &mut rng));
+        ps.push(p_value(NullModel::named("degree-swap"), &w, None, true, &|m| upward_flow(m, &h), &mut rng));
     }
     let (ks, p) = ks_uniform(&ps).unwrap();
     assert!(p > 0.01, "directed degree-swap: p-values not uniform, KS D = {ks}, p = {p}");
@@ -123,7 +123,8 @@ fn directed_swaps_are_calibrated_on_a_directed_graph_and_detect_upward_weight() 
     for _ in 0..10 {
         let h: Vec<f64> = (0..n).map(|_| normal(&mut rng)).collect();
         let w = directed_graph(n, &h, true, &mut rng);
-        if p_value(NullModel::DegreeSwap, &w, None, true, &|m| upward_flow(m, &h), &mut rng) <= 0.05 {
+        if p_value(NullModel::named("degree-swap"), &w, None, true, &|m| upward_flow(m, &h), &mut rng) <= 0.05
+        {
             detected += 1;
         }
     }

@@ -67,7 +67,7 @@ pub fn run(args: DemoArgs) -> anyhow::Result<ExitCode> {
     cfg.network_nulls = args.nulls;
     // The invented connectomes are 93 % dense, like streamline counts: edge swaps cannot rewire
     // them, so the demo reassigns weights among edges of similar length instead.
-    cfg.null_model = hierax::stats::nulls::NullModel::LengthBinShuffle;
+    cfg.null_model = hierax::stats::nulls::NullModel::named("length-bin-shuffle");
     cfg.map_nulls = args.nulls;
     cfg.seed = args.seed;
 

@@ -3,8 +3,9 @@
 use anyhow::Context;
 use clap::Args;
 use hierax::hierarchy::{
-    moran_surrogates, spin_surrogates, variogram_surrogates, MoranBasis, MoranMethod, MoranParams,
-    SphereLayout, SpinParams, SurrogateMethod, VariogramModel, VariogramParams,
+    moran_surrogates, spin_surrogates, surrogate_maps, variogram_surrogates, MoranBasis, MoranMethod,
+    MoranParams, SpatialInputs, SpatialNeed, SphereLayout, SpinParams, SurrogateMethod, VariogramModel,
+    VariogramParams,
 };
 use hierax::io::npy::write_npy_f64;
 use hierax::io::provenance::{InputRecord, Provenance};
@@ -98,7 +99,7 @@ fn load_matrix(raw: &str) -> anyhow::Result<(InputSpec, Array2<f64>)> {
 }
 
 pub fn run(args: SurrogatesArgs) -> anyhow::Result<ExitCode> {
-    if args.hemisphere.is_some() && !matches!(args.method, SurrogateMethod::Spin) {
+    if args.hemisphere.is_some() && args.method.label() != "spin" {
         anyhow::bail!("--hemisphere applies to --method spin only");
     }
     let map_spec = InputSpec::parse(&args.map)?;
@@ -108,8 +109,10 @@ pub fn run(args: SurrogatesArgs) -> anyhow::Result<ExitCode> {
     let n = values.len();
     let mut inputs = vec![InputRecord::of_loaded("map", &la)?];
     let method_table: Option<(&str, Table)>;
-    let (surrogates, diagnostics, params) = match args.method {
-        SurrogateMethod::Spin => {
+    // The three methods with options of their own; a method added to the registry runs through the
+    // library's one dispatch with its defaults.
+    let (surrogates, diagnostics, params) = match args.method.label() {
+        "spin" => {
             let raw = args.sphere_coords.as_deref().context("--method spin needs --sphere-coords")?;
             let (cspec, coords) = load_matrix(raw)?;
             let hemi = match &args.hemisphere {
@@ -145,7 +148,7 @@ pub fn run(args: SurrogatesArgs) -> anyhow::Result<ExitCode> {
             });
             (s.surrogates, diag, serde_json::to_value(p)?)
         }
-        SurrogateMethod::Variogram => {
+        "variogram" => {
             let raw = args.distances.as_deref().context("--method variogram needs --distances")?;
             let (dspec, d) = load_matrix(raw)?;
             if d.nrows() != n {
@@ -182,7 +185,7 @@ pub fn run(args: SurrogatesArgs) -> anyhow::Result<ExitCode> {
             });
             (s.surrogates, diag, serde_json::to_value(&p)?)
         }
-        SurrogateMethod::Moran => {
+        "moran" => {
             let raw = args.weights.as_deref().or(args.distances.as_deref());
             let raw =
                 raw.context("--method moran needs --weights (or --distances for inverse-distance weights)")?;
@@ -203,6 +206,37 @@ pub fn run(args: SurrogatesArgs) -> anyhow::Result<ExitCode> {
             let diag = serde_json::json!({ "morans_i": s.morans_i, "max_abs_deviation_of_surrogate_i": dev });
             (s.surrogates, diag, serde_json::to_value(p)?)
         }
+        other => {
+            method_table = None;
+            let (layout, distances);
+            let spatial = match args.method.needs() {
+                SpatialNeed::Sphere => {
+                    let raw = args
+                        .sphere_coords
+                        .as_deref()
+                        .with_context(|| format!("--method {other} needs --sphere-coords"))?;
+                    let (cspec, coords) = load_matrix(raw)?;
+                    layout = SphereLayout::new(&coords, None, args.radius_tolerance)
+                        .with_context(|| cspec.to_string())?;
+                    inputs.push(InputRecord::of("sphere_coordinates", &cspec)?);
+                    SpatialInputs { sphere: Some(&layout), distances: None }
+                }
+                SpatialNeed::Distances => {
+                    let raw = args
+                        .distances
+                        .as_deref()
+                        .with_context(|| format!("--method {other} needs --distances"))?;
+                    let (dspec, d) = load_matrix(raw)?;
+                    inputs.push(InputRecord::of("distances", &dspec)?);
+                    distances = d;
+                    SpatialInputs { sphere: None, distances: Some(&distances) }
+                }
+            };
+            let s = surrogate_maps(args.method, &values, spatial, args.count, args.seed)
+                .with_context(|| map_spec.to_string())?;
+            let settings = serde_json::json!({ "count": args.count, "seed": args.seed, "other": "the method's defaults" });
+            (s, serde_json::json!({}), settings)
+        }
     };
     let region = super::states::labels(&map.names, n);
     let m = surrogates.ncols();
@@ -212,7 +246,7 @@ pub fn run(args: SurrogatesArgs) -> anyhow::Result<ExitCode> {
     }
     let mut prov = Provenance::new(
         "surrogates",
-        serde_json::json!({ "method": format!("{:?}", args.method).to_lowercase(), "settings": params }),
+        serde_json::json!({ "method": args.method.label(), "settings": params }),
     );
     prov.inputs = inputs;
     let summary = serde_json::json!({

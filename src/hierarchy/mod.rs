@@ -53,7 +53,9 @@ pub use moran::{
 };
 pub use spin::{spin_surrogates, SphereLayout, SpinParams, SpinSurrogates};
 pub use states::{build_states, Order, States, StatesParams};
-pub use surrogates::{inverse_distance_weights, surrogate_maps, SpatialInputs, SurrogateMethod};
+pub use surrogates::{
+    inverse_distance_weights, surrogate_maps, SpatialInputs, SpatialNeed, SurrogateDef, SurrogateMethod,
+};
 pub use variogram::{variogram_surrogates, VariogramModel, VariogramParams, VariogramSurrogates};
 
 /// Refuse a map whose values (ignoring NaN) are all equal: no ranking or

@@ -9,68 +9,22 @@ use super::{
 use ndarray::Array2;
 use serde::Serialize;
 
-/// How surrogate maps are made.
-#[derive(Clone, Copy, Debug, PartialEq, Eq, Serialize, serde::Deserialize, Default)]
-#[serde(rename_all = "kebab-case")]
-#[cfg_attr(feature = "cli", derive(clap::ValueEnum))]
-pub enum SurrogateMethod {
-    /// Rotations of parcel centroids on the sphere (Alexander-Bloch et al. 2018; Váša et al. 2018);
-    /// needs sphere coordinates.
-    #[default]
-    Spin,
-    /// Variogram-matched surrogates (Burt et al. 2020); needs a distance matrix.
-    Variogram,
-    /// Moran spectral randomisation (Wagner & Dray 2015); needs a distance matrix, whose inverse
-    /// gives the spatial weights.
-    Moran,
+/// The spatial input a surrogate method needs besides the map.
+#[derive(Clone, Copy, Debug, PartialEq, Eq)]
+pub enum SpatialNeed {
+    /// Parcel centroids on the sphere.
+    Sphere,
+    /// A region-to-region distance matrix.
+    Distances,
 }
 
-impl SurrogateMethod {
-    /// Every method, in documentation order.
-    pub const ALL: [SurrogateMethod; 3] =
-        [SurrogateMethod::Spin, SurrogateMethod::Variogram, SurrogateMethod::Moran];
-
-    /// The name used in outputs and on the command line.
-    pub fn label(self) -> &'static str {
+impl SpatialNeed {
+    /// The input's name in messages (`sphere`, `distances`).
+    pub fn name(self) -> &'static str {
         match self {
-            SurrogateMethod::Spin => "spin",
-            SurrogateMethod::Variogram => "variogram",
-            SurrogateMethod::Moran => "moran",
+            SpatialNeed::Sphere => "sphere",
+            SpatialNeed::Distances => "distances",
         }
-    }
-
-    /// The null hypothesis a test against these surrogates examines.
-    pub fn hypothesis(self) -> &'static str {
-        match self {
-            SurrogateMethod::Spin => {
-                "the statistic is no more extreme than for the same map rotated on the sphere: spatial \
-                 autocorrelation and the value distribution are kept, the map's placement relative to the \
-                 network is destroyed. Spin p-values run slightly liberal at about 50 parcels per hemisphere \
-                 (about 6 % below 0.05 at alpha = 0.05 for independent smooth fields, in our simulations)"
-            }
-            SurrogateMethod::Variogram => {
-                "the statistic is no more extreme than for random maps with the same variogram (spatial \
-                 autocorrelation, measured after rank-matching to the map's values) and the same values"
-            }
-            SurrogateMethod::Moran => {
-                "the statistic is no more extreme than for random maps with the same Moran's I structure \
-                 (coefficients on the spatial eigenvectors randomised)"
-            }
-        }
-    }
-
-    /// What the method needs besides the map.
-    pub fn needs(self) -> &'static str {
-        match self {
-            SurrogateMethod::Spin => "sphere",
-            SurrogateMethod::Variogram | SurrogateMethod::Moran => "distances",
-        }
-    }
-}
-
-impl std::fmt::Display for SurrogateMethod {
-    fn fmt(&self, f: &mut std::fmt::Formatter<'_>) -> std::fmt::Result {
-        f.write_str(self.label())
     }
 }
 
@@ -81,6 +35,182 @@ pub struct SpatialInputs<'a> {
     pub sphere: Option<&'a SphereLayout>,
     /// Region-to-region distances (variogram, Moran).
     pub distances: Option<&'a Array2<f64>>,
+}
+
+/// A surrogate method, defined once.
+#[derive(Clone, Copy)]
+pub struct SurrogateDef {
+    /// The name used in outputs and on the command line.
+    pub label: &'static str,
+    /// One line with its source, for `--help`.
+    pub summary: &'static str,
+    /// The null hypothesis a test against these surrogates examines.
+    pub hypothesis: &'static str,
+    /// What it needs besides the map.
+    pub needs: SpatialNeed,
+    /// `count` surrogates of the map (regions × count), seeded, with the
+    /// method's defaults; the spatial input it needs is present.
+    pub make: MakeSurrogates,
+}
+
+/// `(map, spatial inputs, count, seed) -> regions × count surrogates`.
+pub type MakeSurrogates = fn(&[f64], SpatialInputs<'_>, usize, u64) -> Result<Array2<f64>, HierarchyError>;
+
+/// Rotations on the sphere (Alexander-Bloch et al. 2018; Váša et al. 2018).
+pub const SPIN: SurrogateDef = SurrogateDef {
+    label: "spin",
+    summary: "Rotations of parcel centroids on the sphere (Alexander-Bloch et al. 2018; Váša et al. 2018); \
+              needs sphere coordinates",
+    hypothesis: "the statistic is no more extreme than for the same map rotated on the sphere: spatial \
+                 autocorrelation and the value distribution are kept, the map's placement relative to the \
+                 network is destroyed. Spin p-values run slightly liberal at about 50 parcels per hemisphere \
+                 (about 6 % below 0.05 at alpha = 0.05 for independent smooth fields, in our simulations)",
+    needs: SpatialNeed::Sphere,
+    make: |map, spatial, count, seed| {
+        let layout = spatial.sphere.expect("checked by surrogate_maps");
+        Ok(spin_surrogates(map, layout, &SpinParams::new(count, seed))?.surrogates)
+    },
+};
+
+/// Variogram-matched surrogates (Burt et al. 2020).
+pub const VARIOGRAM: SurrogateDef = SurrogateDef {
+    label: "variogram",
+    summary: "Variogram-matched surrogates (Burt et al. 2020); needs a distance matrix",
+    hypothesis: "the statistic is no more extreme than for random maps with the same variogram (spatial \
+                 autocorrelation, measured after rank-matching to the map's values) and the same values",
+    needs: SpatialNeed::Distances,
+    make: |map, spatial, count, seed| {
+        let d = spatial.distances.expect("checked by surrogate_maps");
+        let vp = VariogramParams::new(count, seed);
+        let model = VariogramModel::new(d, &vp)?;
+        Ok(variogram_surrogates(map, &model, &vp)?.surrogates)
+    },
+};
+
+/// Moran spectral randomisation (Wagner & Dray 2015).
+pub const MORAN: SurrogateDef = SurrogateDef {
+    label: "moran",
+    summary:
+        "Moran spectral randomisation (Wagner & Dray 2015); needs a distance matrix, whose inverse gives \
+              the spatial weights",
+    hypothesis: "the statistic is no more extreme than for random maps with the same Moran's I structure \
+                 (coefficients on the spatial eigenvectors randomised)",
+    needs: SpatialNeed::Distances,
+    make: |map, spatial, count, seed| {
+        let d = spatial.distances.expect("checked by surrogate_maps");
+        let basis = MoranBasis::new(&inverse_distance_weights(d))?;
+        // Singleton randomisation keeps Moran's I exactly (Wagner & Dray 2015).
+        let p = MoranParams { method: MoranMethod::Singleton, ..MoranParams::new(count, seed) };
+        Ok(moran_surrogates(map, &basis, &p)?.surrogates)
+    },
+};
+
+/// Every surrogate method, in documentation order. Adding one: its
+/// [`SurrogateDef`] (in its own file of this module) and one line here.
+pub const REGISTRY: &[&SurrogateDef] = &[&SPIN, &VARIOGRAM, &MORAN];
+
+/// A surrogate method: a handle on its definition in [`REGISTRY`]. Named by
+/// [`SurrogateMethod::named`] (`SurrogateMethod::named("spin")`); the
+/// default is the first, `spin`.
+#[derive(Clone, Copy, PartialEq, Eq, Hash, PartialOrd, Ord, Default)]
+pub struct SurrogateMethod(u8);
+
+impl SurrogateMethod {
+    /// How many methods there are.
+    pub const COUNT: usize = REGISTRY.len();
+
+    /// Every method, in documentation order.
+    pub const ALL: [SurrogateMethod; Self::COUNT] = {
+        let mut all = [SurrogateMethod(0); Self::COUNT];
+        let mut i = 0;
+        while i < Self::COUNT {
+            all[i] = SurrogateMethod(i as u8);
+            i += 1;
+        }
+        all
+    };
+
+    /// The method labelled `label`.
+    ///
+    /// # Panics
+    /// When no method has that label; in a `const` this is a compile error.
+    pub const fn named(label: &str) -> SurrogateMethod {
+        let mut i = 0;
+        while i < Self::COUNT {
+            if crate::param::const_str_eq(REGISTRY[i].label, label) {
+                return SurrogateMethod(i as u8);
+            }
+            i += 1;
+        }
+        panic!("no surrogate method of that name")
+    }
+
+    /// The method labelled `label`, if any.
+    pub fn from_label(label: &str) -> Option<SurrogateMethod> {
+        Self::ALL.into_iter().find(|m| m.label() == label)
+    }
+
+    /// Its definition.
+    pub fn def(self) -> &'static SurrogateDef {
+        REGISTRY[self.0 as usize]
+    }
+
+    /// The name used in outputs and on the command line.
+    pub fn label(self) -> &'static str {
+        self.def().label
+    }
+
+    /// The null hypothesis a test against these surrogates examines.
+    pub fn hypothesis(self) -> &'static str {
+        self.def().hypothesis
+    }
+
+    /// What the method needs besides the map.
+    pub fn needs(self) -> SpatialNeed {
+        self.def().needs
+    }
+}
+
+impl std::fmt::Display for SurrogateMethod {
+    fn fmt(&self, f: &mut std::fmt::Formatter<'_>) -> std::fmt::Result {
+        f.write_str(self.label())
+    }
+}
+
+impl std::fmt::Debug for SurrogateMethod {
+    fn fmt(&self, f: &mut std::fmt::Formatter<'_>) -> std::fmt::Result {
+        f.write_str(self.label())
+    }
+}
+
+impl Serialize for SurrogateMethod {
+    fn serialize<S: serde::Serializer>(&self, s: S) -> Result<S::Ok, S::Error> {
+        s.serialize_str(self.label())
+    }
+}
+
+impl<'de> serde::Deserialize<'de> for SurrogateMethod {
+    fn deserialize<D: serde::Deserializer<'de>>(d: D) -> Result<Self, D::Error> {
+        let label = String::deserialize(d)?;
+        SurrogateMethod::from_label(&label).ok_or_else(|| {
+            let all: Vec<&str> = SurrogateMethod::ALL.iter().map(|m| m.label()).collect();
+            serde::de::Error::custom(format!(
+                "unknown surrogate method `{label}`; expected one of {}",
+                all.join(", ")
+            ))
+        })
+    }
+}
+
+/// The command line's value list comes from the registry.
+#[cfg(feature = "cli")]
+impl clap::ValueEnum for SurrogateMethod {
+    fn value_variants<'a>() -> &'a [Self] {
+        &Self::ALL
+    }
+    fn to_possible_value(&self) -> Option<clap::builder::PossibleValue> {
+        Some(clap::builder::PossibleValue::new(self.label()).help(self.def().summary))
+    }
 }
 
 /// `count` surrogates of `map` (regions × count) by `method`, seeded.
@@ -95,28 +225,18 @@ pub fn surrogate_maps(
     count: usize,
     seed: u64,
 ) -> Result<Array2<f64>, HierarchyError> {
-    let missing =
-        || HierarchyError::invalid(method.needs(), format!("{method} surrogates need {}", method.needs()));
-    match method {
-        SurrogateMethod::Spin => {
-            let layout = spatial.sphere.ok_or_else(missing)?;
-            Ok(spin_surrogates(map, layout, &SpinParams::new(count, seed))?.surrogates)
-        }
-        SurrogateMethod::Variogram => {
-            let d = spatial.distances.ok_or_else(missing)?;
-            let vp = VariogramParams::new(count, seed);
-            let model = VariogramModel::new(d, &vp)?;
-            Ok(variogram_surrogates(map, &model, &vp)?.surrogates)
-        }
-        SurrogateMethod::Moran => {
-            let d = spatial.distances.ok_or_else(missing)?;
-            let w = inverse_distance_weights(d);
-            let basis = MoranBasis::new(&w)?;
-            // Singleton randomisation keeps Moran's I exactly (Wagner & Dray 2015).
-            let p = MoranParams { method: MoranMethod::Singleton, ..MoranParams::new(count, seed) };
-            Ok(moran_surrogates(map, &basis, &p)?.surrogates)
-        }
+    let need = method.needs();
+    let present = match need {
+        SpatialNeed::Sphere => spatial.sphere.is_some(),
+        SpatialNeed::Distances => spatial.distances.is_some(),
+    };
+    if !present {
+        return Err(HierarchyError::invalid(
+            need.name(),
+            format!("{method} surrogates need {}", need.name()),
+        ));
     }
+    (method.def().make)(map, spatial, count, seed)
 }
 
 /// Spatial weights $w_{ij}=1/d_{ij}$ ($i\ne j$), zero diagonal: the common

@@ -88,7 +88,7 @@ impl SubjectConfig {
             swaps_per_edge: 10,
             length_bins: 10,
             map_nulls: 0,
-            map_null_method: SurrogateMethod::Spin,
+            map_null_method: SurrogateMethod::named("spin"),
             fdr_alpha: 0.05,
             seed: 0,
         }

@@ -4,7 +4,7 @@
 
 use super::config::ValidSubjectConfig;
 use super::SubjectError;
-use crate::hierarchy::{SphereLayout, SurrogateMethod};
+use crate::hierarchy::{SpatialNeed, SphereLayout};
 use crate::io::provenance::InputRecord;
 use crate::io::validate::{self, ConnectomeRules};
 use crate::io::{read_array, InputSpec, IoError};
@@ -113,7 +113,7 @@ pub fn check_study_inputs(
     confounds: bool,
 ) -> Result<(), SubjectError> {
     let p = cfg.params();
-    let map_needs_distances = p.map_nulls > 0 && p.map_null_method != SurrogateMethod::Spin;
+    let map_needs_distances = p.map_nulls > 0 && p.map_null_method.needs() == SpatialNeed::Distances;
     let needs_distances = (p.network_nulls > 0 && p.null_model.needs_distances()) || map_needs_distances;
     if needs_distances && !distances {
         let needed_by = if map_needs_distances {
@@ -123,8 +123,11 @@ pub fn check_study_inputs(
         };
         return Err(SubjectError::MissingInput { input: "distances", needed_by });
     }
-    if p.map_nulls > 0 && p.map_null_method == SurrogateMethod::Spin && !sphere {
-        return Err(SubjectError::MissingInput { input: "sphere", needed_by: "spin map nulls".into() });
+    if p.map_nulls > 0 && p.map_null_method.needs() == SpatialNeed::Sphere && !sphere {
+        return Err(SubjectError::MissingInput {
+            input: "sphere",
+            needed_by: format!("{} map nulls", p.map_null_method),
+        });
     }
     if !confounds && !p.confound_columns.is_empty() {
         return Err(SubjectError::MissingInput {
@@ -208,26 +211,27 @@ impl LoadedSubject {
             }
             None => None,
         };
-        let sphere = match (&inputs.sphere, p.map_nulls > 0 && p.map_null_method == SurrogateMethod::Spin) {
-            (Some(spec), true) => {
-                let la = read_array(spec)?;
-                records.push(InputRecord::of_loaded("sphere", &la)?);
-                let coords = la.into_matrix()?;
-                let hemi = match &inputs.hemisphere {
-                    Some(h) => {
-                        records.push(InputRecord::of("hemisphere", h)?);
-                        Some(hemisphere_codes(h)?)
-                    }
-                    None => None,
-                };
-                // 0.02: tolerance on the unit-sphere radius, as the spin module documents.
-                let layout = SphereLayout::new(&coords, hemi.as_deref(), 0.02).map_err(|source| {
-                    SubjectError::Hierarchy { stage: "sphere", input: spec.to_string(), source }
-                })?;
-                Some(layout)
-            }
-            _ => None,
-        };
+        let sphere =
+            match (&inputs.sphere, p.map_nulls > 0 && p.map_null_method.needs() == SpatialNeed::Sphere) {
+                (Some(spec), true) => {
+                    let la = read_array(spec)?;
+                    records.push(InputRecord::of_loaded("sphere", &la)?);
+                    let coords = la.into_matrix()?;
+                    let hemi = match &inputs.hemisphere {
+                        Some(h) => {
+                            records.push(InputRecord::of("hemisphere", h)?);
+                            Some(hemisphere_codes(h)?)
+                        }
+                        None => None,
+                    };
+                    // 0.02: tolerance on the unit-sphere radius, as the spin module documents.
+                    let layout = SphereLayout::new(&coords, hemi.as_deref(), 0.02).map_err(|source| {
+                        SubjectError::Hierarchy { stage: "sphere", input: spec.to_string(), source }
+                    })?;
+                    Some(layout)
+                }
+                _ => None,
+            };
         Ok(LoadedSubject {
             subject: inputs.subject.clone(),
             names,

@@ -37,7 +37,7 @@ impl Estimator {
     pub const fn named(name: &str) -> Estimator {
         let mut i = 0;
         while i < Self::COUNT {
-            if const_str_eq(REGISTRY[i].name, name) {
+            if crate::param::const_str_eq(REGISTRY[i].name, name) {
                 return Estimator(i as u8);
             }
             i += 1;
@@ -69,21 +69,6 @@ impl Estimator {
     pub fn prefix(self) -> &'static str {
         self.def().prefix
     }
-}
-
-const fn const_str_eq(a: &str, b: &str) -> bool {
-    let (a, b) = (a.as_bytes(), b.as_bytes());
-    if a.len() != b.len() {
-        return false;
-    }
-    let mut i = 0;
-    while i < a.len() {
-        if a[i] != b[i] {
-            return false;
-        }
-        i += 1;
-    }
-    true
 }
 
 impl std::fmt::Debug for Estimator {

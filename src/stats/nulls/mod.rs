@@ -30,7 +30,7 @@ mod tests;
 use super::StatsError;
 use edges::{edges_changed, edges_of, strength_error, strengths, to_matrix, Edge, LengthBins};
 use ndarray::{Array2, ArrayView2};
-use rand::Rng;
+use rand::{Rng, RngCore};
 use serde::Serialize;
 pub use swaps::ks_distance_sorted;
 
@@ -44,88 +44,168 @@ pub const MIN_EDGES_CHANGED: f64 = 0.5;
 /// 18 % of edges, so [`MIN_EDGES_CHANGED`] usually decides first).
 pub const MIN_ACCEPTED_SHARE: f64 = 0.01;
 
-/// A network null model.
-#[derive(Clone, Copy, Debug, PartialEq, Eq, Serialize, serde::Deserialize, Default)]
-#[serde(rename_all = "kebab-case")]
-#[cfg_attr(feature = "cli", derive(clap::ValueEnum))]
-pub enum NullModel {
-    /// Double-edge swaps that keep every degree; weights travel with their edges (Maslov & Sneppen
-    /// 2002). For sparse networks.
-    #[default]
-    DegreeSwap,
-    /// Degree swaps, then weights re-matched to the original strengths (after Rubinov & Sporns
-    /// 2011). For sparse networks.
-    StrengthSwap,
-    /// Degree swaps kept only when each new edge has the length bin of the one it replaces (after
-    /// Betzel & Bassett 2018); needs distances. For sparse networks.
-    GeometrySwap,
-    /// Weights reassigned over the same topology, matched to the original strengths (after Rubinov &
-    /// Sporns 2011). For dense weighted networks.
-    WeightPermutation,
-    /// Weights reassigned among edges of similar length over the same topology, matched to the
-    /// original strengths; needs distances. For dense weighted networks.
-    LengthBinShuffle,
+/// What a null model's rewiring reads: the network's fixed properties,
+/// computed once per network.
+struct RewireInput<'a> {
+    n: usize,
+    directed: bool,
+    params: &'a NullParams,
+    /// The distance matrix (present whenever the model needs one).
+    distance: Option<ArrayView2<'a, f64>>,
+    /// Equal-count bins of the edge lengths.
+    bins: &'a LengthBins,
+    /// Each edge's length in edge order, and sorted.
+    lengths: &'a [f64],
+    sorted_lengths: &'a [f64],
+    /// Out- and in-strengths to match.
+    strengths: &'a (Vec<f64>, Vec<f64>),
 }
 
+/// What a rewiring reports beyond the edges it moved.
+#[derive(Clone, Copy, Debug, Default)]
+struct RewireOutcome {
+    /// (attempted, accepted) swaps, for swap models.
+    swaps: Option<(usize, usize)>,
+    /// KS distance between original and null edge lengths, when lengths were matched by swaps.
+    length_ks_distance: Option<f64>,
+}
+
+/// A network null model, defined once.
+#[derive(Clone, Copy)]
+pub struct NullModelDef {
+    /// The name used in outputs and on the command line.
+    pub label: &'static str,
+    /// One line with its source, for `--help`.
+    pub summary: &'static str,
+    /// The null hypothesis a test against this model examines.
+    pub hypothesis: &'static str,
+    /// Whether it needs a region-to-region distance matrix.
+    pub needs_distances: bool,
+    /// Whether it moves edges by swaps (and so cannot rewire a dense network).
+    pub swaps_edges: bool,
+    /// Advice when it is refused on a network that is not dense (`None`:
+    /// the advice for dense networks applies).
+    pub sparse_refusal_advice: Option<&'static str>,
+    /// Randomise `edges` in place.
+    rewire: fn(&RewireInput<'_>, &mut Vec<Edge>, &mut dyn RngCore) -> RewireOutcome,
+}
+
+/// Every null model, in documentation order. Adding one: its
+/// [`NullModelDef`] in a file of this module and one line here.
+pub const REGISTRY: &[&NullModelDef] = &[
+    &swaps::DEGREE_SWAP,
+    &swaps::STRENGTH_SWAP,
+    &swaps::GEOMETRY_SWAP,
+    &permute::WEIGHT_PERMUTATION,
+    &permute::LENGTH_BIN_SHUFFLE,
+];
+
+/// A network null model: a handle on its definition in [`REGISTRY`]. Named
+/// by [`NullModel::named`] (`NullModel::named("degree-swap")`); the default
+/// is the first, `degree-swap`.
+#[derive(Clone, Copy, PartialEq, Eq, Hash, PartialOrd, Ord, Default)]
+pub struct NullModel(u8);
+
 impl NullModel {
+    /// How many models there are.
+    pub const COUNT: usize = REGISTRY.len();
+
     /// Every model, in documentation order.
-    pub const ALL: [NullModel; 5] = [
-        NullModel::DegreeSwap,
-        NullModel::StrengthSwap,
-        NullModel::GeometrySwap,
-        NullModel::WeightPermutation,
-        NullModel::LengthBinShuffle,
-    ];
+    pub const ALL: [NullModel; Self::COUNT] = {
+        let mut all = [NullModel(0); Self::COUNT];
+        let mut i = 0;
+        while i < Self::COUNT {
+            all[i] = NullModel(i as u8);
+            i += 1;
+        }
+        all
+    };
+
+    /// The model labelled `label`.
+    ///
+    /// # Panics
+    /// When no model has that label; in a `const` this is a compile error.
+    pub const fn named(label: &str) -> NullModel {
+        let mut i = 0;
+        while i < Self::COUNT {
+            if crate::param::const_str_eq(REGISTRY[i].label, label) {
+                return NullModel(i as u8);
+            }
+            i += 1;
+        }
+        panic!("no network null model of that name")
+    }
+
+    /// The model labelled `label`, if any.
+    pub fn from_label(label: &str) -> Option<NullModel> {
+        Self::ALL.into_iter().find(|m| m.label() == label)
+    }
+
+    /// Its definition.
+    pub fn def(self) -> &'static NullModelDef {
+        REGISTRY[self.0 as usize]
+    }
 
     /// The name used in outputs and on the command line.
     pub fn label(self) -> &'static str {
-        match self {
-            NullModel::DegreeSwap => "degree-swap",
-            NullModel::StrengthSwap => "strength-swap",
-            NullModel::GeometrySwap => "geometry-swap",
-            NullModel::WeightPermutation => "weight-permutation",
-            NullModel::LengthBinShuffle => "length-bin-shuffle",
-        }
+        self.def().label
     }
 
     /// The null hypothesis a test against this model examines.
     pub fn hypothesis(self) -> &'static str {
-        match self {
-            NullModel::DegreeSwap => {
-                "the statistic is no more extreme than on networks with the same degrees and weights but \
-                 random wiring: it depends on which regions connect, beyond how many connections each has"
-            }
-            NullModel::StrengthSwap => {
-                "the statistic is no more extreme than on randomly wired networks with the same degrees and \
-                 approximately the same strengths: it depends on the wiring beyond each region's total \
-                 connection weight"
-            }
-            NullModel::GeometrySwap => {
-                "the statistic is no more extreme than on randomly wired networks with the same degrees and \
-                 edge-length distribution: it depends on the wiring beyond what wiring length explains"
-            }
-            NullModel::WeightPermutation => {
-                "the statistic is no more extreme than on the same topology with weights reassigned to keep \
-                 strengths approximately: it depends on which connection carries which weight, beyond each \
-                 region's total connection weight"
-            }
-            NullModel::LengthBinShuffle => {
-                "the statistic is no more extreme than on the same topology with weights reassigned among \
-                 connections of similar length, keeping strengths approximately: it depends on which \
-                 connection carries which weight, beyond what connection length and each region's total \
-                 connection weight explain"
-            }
-        }
+        self.def().hypothesis
     }
 
     /// Whether the model needs a region-to-region distance matrix.
     pub fn needs_distances(self) -> bool {
-        matches!(self, NullModel::GeometrySwap | NullModel::LengthBinShuffle)
+        self.def().needs_distances
     }
 
     /// Whether the model moves edges by swaps (and so cannot rewire a dense network).
     pub fn swaps_edges(self) -> bool {
-        matches!(self, NullModel::DegreeSwap | NullModel::StrengthSwap | NullModel::GeometrySwap)
+        self.def().swaps_edges
+    }
+}
+
+impl std::fmt::Debug for NullModel {
+    fn fmt(&self, f: &mut std::fmt::Formatter<'_>) -> std::fmt::Result {
+        f.write_str(self.label())
+    }
+}
+
+impl std::fmt::Display for NullModel {
+    fn fmt(&self, f: &mut std::fmt::Formatter<'_>) -> std::fmt::Result {
+        f.write_str(self.label())
+    }
+}
+
+impl Serialize for NullModel {
+    fn serialize<S: serde::Serializer>(&self, s: S) -> Result<S::Ok, S::Error> {
+        s.serialize_str(self.label())
+    }
+}
+
+impl<'de> serde::Deserialize<'de> for NullModel {
+    fn deserialize<D: serde::Deserializer<'de>>(d: D) -> Result<Self, D::Error> {
+        let label = String::deserialize(d)?;
+        NullModel::from_label(&label).ok_or_else(|| {
+            let all: Vec<&str> = NullModel::ALL.iter().map(|m| m.label()).collect();
+            serde::de::Error::custom(format!(
+                "unknown null model `{label}`; expected one of {}",
+                all.join(", ")
+            ))
+        })
+    }
+}
+
+/// The command line's value list comes from the registry.
+#[cfg(feature = "cli")]
+impl clap::ValueEnum for NullModel {
+    fn value_variants<'a>() -> &'a [Self] {
+        &Self::ALL
+    }
+    fn to_possible_value(&self) -> Option<clap::builder::PossibleValue> {
+        Some(clap::builder::PossibleValue::new(self.label()).help(self.def().summary))
     }
 }
 
@@ -288,47 +368,27 @@ pub fn rewire<R: Rng + ?Sized>(
         }
         (false, _) => None,
     };
-    let (lengths, sorted_lengths) = (&net.lengths, &net.sorted_lengths);
-    let bins = LengthBins::new(sorted_lengths, params.length_bins.max(1));
+    let bins = LengthBins::new(&net.sorted_lengths, params.length_bins.max(1));
+    let input = RewireInput {
+        n,
+        directed,
+        params,
+        distance,
+        bins: &bins,
+        lengths: &net.lengths,
+        sorted_lengths: &net.sorted_lengths,
+        strengths: &net.strengths,
+    };
+    let mut rng: &mut R = rng;
+    let outcome = (model.def().rewire)(&input, &mut edges, &mut rng);
     let target = &net.strengths;
-    let mut swaps = None;
-    let mut ks = None;
-    match model {
-        NullModel::DegreeSwap => {
-            swaps = Some(swaps::swap_edges(n, &mut edges, directed, params.swaps_per_edge, rng, |_, _| true));
-        }
-        NullModel::StrengthSwap => {
-            swaps = Some(swaps::swap_edges(n, &mut edges, directed, params.swaps_per_edge, rng, |_, _| true));
-            permute::strength_matched(&mut edges, directed, target, None, rng);
-        }
-        NullModel::GeometrySwap => {
-            let d = distance.expect("checked above");
-            swaps = Some(swaps::length_preserving_swaps(
-                n,
-                &mut edges,
-                directed,
-                d,
-                &bins,
-                params.swaps_per_edge,
-                rng,
-            ));
-            let mut after: Vec<f64> = edges.iter().map(|e| d[[e.a, e.b]]).collect();
-            after.sort_by(f64::total_cmp);
-            ks = Some(ks_distance_sorted(sorted_lengths, &after));
-        }
-        NullModel::WeightPermutation => permute::strength_matched(&mut edges, directed, target, None, rng),
-        NullModel::LengthBinShuffle => {
-            let group: Vec<usize> = lengths.iter().map(|&l| bins.of(l)).collect();
-            permute::strength_matched(&mut edges, directed, target, Some((&group, params.length_bins)), rng);
-        }
-    }
     let null = to_matrix(net.weights, &edges, directed);
     let info = RewireInfo {
-        swaps_attempted: swaps.map(|s| s.0),
-        swaps_accepted: swaps.map(|s| s.1),
+        swaps_attempted: outcome.swaps.map(|s| s.0),
+        swaps_accepted: outcome.swaps.map(|s| s.1),
         edges_changed: edges_changed(&net.edges, &null),
         strength_error: strength_error(target, &strengths(null.view())),
-        length_ks_distance: ks,
+        length_ks_distance: outcome.length_ks_distance,
     };
     Ok((null, info))
 }
@@ -419,12 +479,12 @@ fn refusal_reason(
             ),
             _ => format!("{accepted_text}, but {moved}"),
         };
-        let advice = if model == NullModel::GeometrySwap && e.density < 0.5 {
-            "swaps that must keep every edge's length bin are too constrained here: use fewer length bins, or the \
-             length-bin-shuffle null model"
-        } else {
-            "edge swaps cannot rewire a network this dense: use the weight-permutation or length-bin-shuffle null \
-             model"
+        let advice = match model.def().sparse_refusal_advice {
+            Some(advice) if e.density < 0.5 => advice,
+            _ => {
+                "edge swaps cannot rewire a network this dense: use the weight-permutation or length-bin-shuffle \
+                 null model"
+            }
         };
         return format!("{density}: {swaps}; {advice}");
     }

@@ -3,6 +3,7 @@
 //! edge-length bins.
 
 use super::edges::Edge;
+use super::{NullModelDef, RewireOutcome};
 use rand::seq::SliceRandom;
 use rand::Rng;
 
@@ -96,3 +97,39 @@ pub(super) fn strength_matched<R: Rng + ?Sized>(
         }
     }
 }
+/// Weights reassigned over the same topology (after Rubinov & Sporns 2011).
+pub(super) const WEIGHT_PERMUTATION: NullModelDef = NullModelDef {
+    label: "weight-permutation",
+    summary: "Weights reassigned over the same topology, matched to the original strengths (after Rubinov & \
+              Sporns 2011). For dense weighted networks",
+    hypothesis: "the statistic is no more extreme than on the same topology with weights reassigned to keep \
+                 strengths approximately: it depends on which connection carries which weight, beyond each \
+                 region's total connection weight",
+    needs_distances: false,
+    swaps_edges: false,
+    sparse_refusal_advice: None,
+    rewire: |x, edges, rng| {
+        strength_matched(edges, x.directed, x.strengths, None, rng);
+        RewireOutcome::default()
+    },
+};
+
+/// Weights reassigned among edges of similar length (after Betzel & Bassett
+/// 2018; Rubinov & Sporns 2011).
+pub(super) const LENGTH_BIN_SHUFFLE: NullModelDef = NullModelDef {
+    label: "length-bin-shuffle",
+    summary: "Weights reassigned among edges of similar length over the same topology, matched to the \
+              original strengths; needs distances. For dense weighted networks",
+    hypothesis: "the statistic is no more extreme than on the same topology with weights reassigned among \
+                 connections of similar length, keeping strengths approximately: it depends on which \
+                 connection carries which weight, beyond what connection length and each region's total \
+                 connection weight explain",
+    needs_distances: true,
+    swaps_edges: false,
+    sparse_refusal_advice: None,
+    rewire: |x, edges, rng| {
+        let group: Vec<usize> = x.lengths.iter().map(|&l| x.bins.of(l)).collect();
+        strength_matched(edges, x.directed, x.strengths, Some((&group, x.params.length_bins)), rng);
+        RewireOutcome::default()
+    },
+};

@@ -2,6 +2,7 @@
 //! (ordered edges, keeping every in- and out-degree).
 
 use super::edges::{Edge, LengthBins};
+use super::{NullModelDef, RewireOutcome};
 use rand::Rng;
 
 /// Run `swaps_per_edge` × |E| double-edge swap attempts in place and return
@@ -102,3 +103,58 @@ pub fn ks_distance_sorted(a: &[f64], b: &[f64]) -> f64 {
     }
     d
 }
+/// Double-edge swaps keeping every degree (Maslov & Sneppen 2002).
+pub(super) const DEGREE_SWAP: NullModelDef = NullModelDef {
+    label: "degree-swap",
+    summary: "Double-edge swaps that keep every degree; weights travel with their edges (Maslov & Sneppen \
+              2002). For sparse networks",
+    hypothesis: "the statistic is no more extreme than on networks with the same degrees and weights but \
+                 random wiring: it depends on which regions connect, beyond how many connections each has",
+    needs_distances: false,
+    swaps_edges: true,
+    sparse_refusal_advice: None,
+    rewire: |x, edges, rng| RewireOutcome {
+        swaps: Some(swap_edges(x.n, edges, x.directed, x.params.swaps_per_edge, rng, |_, _| true)),
+        length_ks_distance: None,
+    },
+};
+
+/// Degree swaps, then weights re-matched to the strengths (after Rubinov & Sporns 2011).
+pub(super) const STRENGTH_SWAP: NullModelDef = NullModelDef {
+    label: "strength-swap",
+    summary: "Degree swaps, then weights re-matched to the original strengths (after Rubinov & Sporns \
+              2011). For sparse networks",
+    hypothesis: "the statistic is no more extreme than on randomly wired networks with the same degrees and \
+                 approximately the same strengths: it depends on the wiring beyond each region's total \
+                 connection weight",
+    needs_distances: false,
+    swaps_edges: true,
+    sparse_refusal_advice: None,
+    rewire: |x, edges, rng| {
+        let swaps = swap_edges(x.n, edges, x.directed, x.params.swaps_per_edge, rng, |_, _| true);
+        super::permute::strength_matched(edges, x.directed, x.strengths, None, rng);
+        RewireOutcome { swaps: Some(swaps), length_ks_distance: None }
+    },
+};
+
+/// Degree swaps that keep each edge's length bin (after Betzel & Bassett 2018).
+pub(super) const GEOMETRY_SWAP: NullModelDef = NullModelDef {
+    label: "geometry-swap",
+    summary: "Degree swaps kept only when each new edge has the length bin of the one it replaces (after \
+              Betzel & Bassett 2018); needs distances. For sparse networks",
+    hypothesis: "the statistic is no more extreme than on randomly wired networks with the same degrees and \
+                 edge-length distribution: it depends on the wiring beyond what wiring length explains",
+    needs_distances: true,
+    swaps_edges: true,
+    sparse_refusal_advice: Some(
+        "swaps that must keep every edge's length bin are too constrained here: use fewer length bins, or the \
+         length-bin-shuffle null model",
+    ),
+    rewire: |x, edges, rng| {
+        let d = x.distance.expect("checked by rewire: the model needs distances");
+        let swaps = length_preserving_swaps(x.n, edges, x.directed, d, x.bins, x.params.swaps_per_edge, rng);
+        let mut after: Vec<f64> = edges.iter().map(|e| d[[e.a, e.b]]).collect();
+        after.sort_by(f64::total_cmp);
+        RewireOutcome { swaps: Some(swaps), length_ks_distance: Some(ks_distance_sorted(x.sorted_lengths, &after)) }
+    },
+};

@@ -76,7 +76,7 @@ fn run(
 fn swaps_keep_degrees_and_weights_exactly_over_seeds() {
     let w = random_network(40, 0.2, false, 7);
     for seed in 0..5 {
-        let (null, info) = run(NullModel::DegreeSwap, &w, None, false, seed);
+        let (null, info) = run(NullModel::named("degree-swap"), &w, None, false, seed);
         assert_eq!(out_degrees(&null), out_degrees(&w));
         assert_eq!(sorted_weights(&null), sorted_weights(&w));
         assert!(info.swaps_accepted.unwrap() > info.swaps_attempted.unwrap() / 4, "{info:?}");
@@ -91,7 +91,7 @@ fn directed_swaps_keep_in_and_out_degrees_and_out_strengths_and_never_symmetrise
     let w = random_network(40, 0.15, true, 8);
     let (out_s, _) = edges::strengths(w.view());
     for seed in 0..5 {
-        let (null, info) = run(NullModel::DegreeSwap, &w, None, true, seed);
+        let (null, info) = run(NullModel::named("degree-swap"), &w, None, true, seed);
         assert_eq!(out_degrees(&null), out_degrees(&w));
         assert_eq!(in_degrees(&null), in_degrees(&w));
         assert_eq!(sorted_weights(&null), sorted_weights(&w));
@@ -111,8 +111,8 @@ fn directed_swaps_keep_in_and_out_degrees_and_out_strengths_and_never_symmetrise
 fn strength_matching_beats_plain_swaps_on_strength_error_undirected_and_directed() {
     for directed in [false, true] {
         let w = hub_network(60, 0.3, directed, 11);
-        let (_, plain) = run(NullModel::DegreeSwap, &w, None, directed, 1);
-        let (null, kept) = run(NullModel::StrengthSwap, &w, None, directed, 1);
+        let (_, plain) = run(NullModel::named("degree-swap"), &w, None, directed, 1);
+        let (null, kept) = run(NullModel::named("strength-swap"), &w, None, directed, 1);
         assert_eq!(out_degrees(&null), out_degrees(&w));
         assert_eq!(in_degrees(&null), in_degrees(&w));
         assert_eq!(sorted_weights(&null), sorted_weights(&w));
@@ -138,8 +138,8 @@ fn geometry_swaps_keep_the_length_distribution() {
             }
         }
     }
-    let (geo, info) = run(NullModel::GeometrySwap, &w, Some(&d), false, 4);
-    let (plain, _) = run(NullModel::DegreeSwap, &w, None, false, 4);
+    let (geo, info) = run(NullModel::named("geometry-swap"), &w, Some(&d), false, 4);
+    let (plain, _) = run(NullModel::named("degree-swap"), &w, None, false, 4);
     assert_eq!(out_degrees(&geo), out_degrees(&w));
     let lengths = |m: &Array2<f64>| {
         let mut v: Vec<f64> = edges_of(m.view(), false).iter().map(|e| d[[e.a, e.b]]).collect();
@@ -159,7 +159,7 @@ fn geometry_swaps_keep_the_length_distribution() {
 fn weight_permutation_keeps_topology_and_moves_weights_of_a_complete_graph() {
     let n = 30;
     let w = hub_network(n, 1.0, false, 5);
-    let (null, info) = run(NullModel::WeightPermutation, &w, None, false, 2);
+    let (null, info) = run(NullModel::named("weight-permutation"), &w, None, false, 2);
     assert_eq!(null.mapv(|v| v > 0.0), w.mapv(|v| v > 0.0), "topology kept");
     assert_eq!(sorted_weights(&null), sorted_weights(&w), "a permutation of the weights");
     assert_eq!(null, null.t());
@@ -183,7 +183,7 @@ fn length_bin_shuffle_keeps_topology_and_each_bins_weights() {
     let n = 30;
     let d = line_distances(n);
     let w = random_network(n, 1.0, false, 6);
-    let (null, info) = run(NullModel::LengthBinShuffle, &w, Some(&d), false, 3);
+    let (null, info) = run(NullModel::named("length-bin-shuffle"), &w, Some(&d), false, 3);
     assert_eq!(null.mapv(|v| v > 0.0), w.mapv(|v| v > 0.0));
     assert!(info.edges_changed > 0.8, "{info:?}");
     // The multiset of weights within each length bin is unchanged.
@@ -203,7 +203,7 @@ fn length_bin_shuffle_keeps_topology_and_each_bins_weights() {
     // On a network with hubs, strengths are kept far better than by a uniform shuffle within the
     // same bins.
     let wh = hub_network(n, 1.0, false, 6);
-    let (_, kept) = run(NullModel::LengthBinShuffle, &wh, Some(&d), false, 3);
+    let (_, kept) = run(NullModel::named("length-bin-shuffle"), &wh, Some(&d), false, 3);
     let mut uniform = edges_of(wh.view(), false);
     let mut rng = ChaCha8Rng::seed_from_u64(3);
     for bin in 0..10 {
@@ -224,7 +224,7 @@ fn length_bin_shuffle_keeps_topology_and_each_bins_weights() {
 fn the_diagonal_is_carried_over_and_never_rewired() {
     let mut w = random_network(20, 0.3, false, 12);
     w[[3, 3]] = 7.0;
-    let (null, _) = run(NullModel::DegreeSwap, &w, None, false, 1);
+    let (null, _) = run(NullModel::named("degree-swap"), &w, None, false, 1);
     assert_eq!(null[[3, 3]], 7.0);
 }
 
@@ -250,7 +250,11 @@ fn every_model_refuses_a_complete_graph_of_equal_weights_and_says_why() {
     // The degenerate case: 12 regions, every pair connected with weight 1.
     let n = 12;
     let w = Array2::from_shape_fn((n, n), |(i, j)| if i == j { 0.0 } else { 1.0 });
-    for model in [NullModel::DegreeSwap, NullModel::StrengthSwap, NullModel::GeometrySwap] {
+    for model in [
+        NullModel::named("degree-swap"),
+        NullModel::named("strength-swap"),
+        NullModel::named("geometry-swap"),
+    ] {
         let r = refusal(model, &w, false);
         // Five rewirings of 10 attempts per edge: 3,300 attempts pooled.
         assert!(
@@ -261,12 +265,12 @@ fn every_model_refuses_a_complete_graph_of_equal_weights_and_says_why() {
         );
         assert!(r.contains("use the weight-permutation or length-bin-shuffle null model"), "{r}");
     }
-    for model in [NullModel::WeightPermutation, NullModel::LengthBinShuffle] {
+    for model in [NullModel::named("weight-permutation"), NullModel::named("length-bin-shuffle")] {
         let r = refusal(model, &w, false);
         assert!(r.starts_with("all 66 edge weights are equal, so reassigning them changes nothing"), "{r}");
     }
     // The same, directed: 132 ordered edges.
-    let r = refusal(NullModel::DegreeSwap, &w, true);
+    let r = refusal(NullModel::named("degree-swap"), &w, true);
     assert!(r.starts_with("the connectome is 100 % dense (132 edges over 12 regions)"), "{r}");
 }
 
@@ -296,9 +300,9 @@ fn sparse_networks_pass_the_assessment_with_their_accepted_share() {
     let net = Network::new(w.view(), None, false).unwrap();
     let mut rng = ChaCha8Rng::seed_from_u64(4);
     let infos: Vec<RewireInfo> = (0..4)
-        .map(|_| rewire(NullModel::DegreeSwap, &net, &NullParams::default(), &mut rng).unwrap().1)
+        .map(|_| rewire(NullModel::named("degree-swap"), &net, &NullParams::default(), &mut rng).unwrap().1)
         .collect();
-    let e = assess(NullModel::DegreeSwap, &net, &infos).unwrap();
+    let e = assess(NullModel::named("degree-swap"), &net, &infos).unwrap();
     let share = e.accepted_share.unwrap();
     // Expected acceptance of a random swap is about (1 - density)^2 minus collisions (0.64 at 0.2).
     assert!(share > 0.4 && share < 0.8, "{e:?}");
@@ -309,8 +313,12 @@ fn sparse_networks_pass_the_assessment_with_their_accepted_share() {
 fn models_needing_distances_say_so() {
     let w = random_network(10, 0.5, false, 1);
     let net = Network::new(w.view(), None, false).unwrap();
-    let e =
-        rewire(NullModel::LengthBinShuffle, &net, &NullParams::default(), &mut ChaCha8Rng::seed_from_u64(1));
+    let e = rewire(
+        NullModel::named("length-bin-shuffle"),
+        &net,
+        &NullParams::default(),
+        &mut ChaCha8Rng::seed_from_u64(1),
+    );
     assert_eq!(e.unwrap_err().to_string(), "length-bin-shuffle needs a distance matrix");
 }
 
