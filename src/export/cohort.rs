@@ -153,17 +153,17 @@ pub fn write_unit_tables(
     values: &mut CohortValues,
 ) -> Result<(), IoError> {
     let ok: Vec<&UnitStatus> = units.iter().filter(|u| u.succeeded()).collect();
-    let first = ok.first().map(|u| read(&u.subject)).transpose()?;
+    // The first record gives the header (its tests name the p-value columns) and is the first row.
+    let mut first = ok.first().map(|u| read(&u.subject)).transpose()?;
     let header = cohort_header(covariate_names, first.as_ref());
     let n_tests = first.as_ref().map_or(0, |r| r.tests.len());
-    drop(first);
     let mut failure: Option<IoError> = None;
     let mut notes: Vec<u32> = Vec::with_capacity(ok.len());
     let written = write_atomic(&out.join(format!("{}.csv", schema::COHORT.stem)), |w| {
         let mut csv = csv::Writer::from_writer(w);
         csv.write_record(&header)?;
         for u in &ok {
-            let r = match read(&u.subject) {
+            let r = match first.take().map_or_else(|| read(&u.subject), Ok) {
                 Ok(r) => r,
                 Err(e) => {
                     failure = Some(e);
@@ -361,11 +361,15 @@ mod tests {
             unit("sub-02", Some("sub-02: series: no such file")),
             unit("sub-03", None),
         ];
+        let reads = std::cell::Cell::new(0);
         let read = |u: &str| -> Result<SubjectRecord, IoError> {
+            reads.set(reads.get() + 1);
             Ok(record(u, if u == "sub-01" { "9" } else { "n/a" }, if u == "sub-01" { -1.0 } else { -2.0 }))
         };
         let mut values = CohortValues::new(&["age", "age"]);
         write_unit_tables(dir.path(), &units, &["age".into()], &read, &mut values).unwrap();
+        // Each record is read once, the first (which names the header's columns) included.
+        assert_eq!(reads.get(), 2);
         let cohort = std::fs::read_to_string(dir.path().join("cohort.csv")).unwrap();
         let lines: Vec<&str> = cohort.lines().collect();
         assert_eq!(lines.len(), 3);
