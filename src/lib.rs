@@ -25,6 +25,8 @@
 //! * [`cohort`]: participant lists, runs over many subjects, cohort tests and
 //!   models.
 //! * [`param`]: the one shape of a rejected parameter.
+//! * `registry` (internal): the one mechanism behind every list of
+//!   interchangeable methods (estimators, null models, surrogate methods).
 //! * [`report`]: HTML reports with SVG figures.
 //!
 //! This is research software. Its results are not for clinical decisions.
@@ -39,6 +41,7 @@ pub mod io;
 pub(crate) mod linalg;
 pub mod link;
 pub mod param;
+mod registry;
 pub mod report;
 pub mod stats;
 pub mod subject;

@@ -47,22 +47,6 @@ pub fn require(
     }
 }
 
-/// String equality usable in `const` (registries look names up at compile time).
-pub(crate) const fn const_str_eq(a: &str, b: &str) -> bool {
-    let (a, b) = (a.as_bytes(), b.as_bytes());
-    if a.len() != b.len() {
-        return false;
-    }
-    let mut i = 0;
-    while i < a.len() {
-        if a[i] != b[i] {
-            return false;
-        }
-        i += 1;
-    }
-    true
-}
-
 #[cfg(test)]
 mod tests {
     use super::*;

@@ -7,7 +7,6 @@ use super::{
     MoranParams, SphereLayout, SpinParams, VariogramModel, VariogramParams,
 };
 use ndarray::Array2;
-use serde::Serialize;
 
 /// The spatial input a surrogate method needs besides the map.
 #[derive(Clone, Copy, Debug, PartialEq, Eq)]
@@ -109,52 +108,18 @@ pub const MORAN: SurrogateDef = SurrogateDef {
 /// [`SurrogateDef`] (in its own file of this module) and one line here.
 pub const REGISTRY: &[&SurrogateDef] = &[&SPIN, &VARIOGRAM, &MORAN];
 
-/// A surrogate method: a handle on its definition in [`REGISTRY`]. Named by
-/// [`SurrogateMethod::named`] (`SurrogateMethod::named("spin")`); the
-/// default is the first, `spin`.
-#[derive(Clone, Copy, PartialEq, Eq, Hash, PartialOrd, Ord, Default)]
-pub struct SurrogateMethod(u8);
+crate::registry::method_handle!(
+    /// A surrogate method: a handle on its definition in [`REGISTRY`].
+    /// Named by [`SurrogateMethod::named`] (`SurrogateMethod::named("spin")`);
+    /// the default is the first, `spin`.
+    SurrogateMethod,
+    SurrogateDef,
+    REGISTRY,
+    label,
+    "surrogate method"
+);
 
 impl SurrogateMethod {
-    /// How many methods there are.
-    pub const COUNT: usize = REGISTRY.len();
-
-    /// Every method, in documentation order.
-    pub const ALL: [SurrogateMethod; Self::COUNT] = {
-        let mut all = [SurrogateMethod(0); Self::COUNT];
-        let mut i = 0;
-        while i < Self::COUNT {
-            all[i] = SurrogateMethod(i as u8);
-            i += 1;
-        }
-        all
-    };
-
-    /// The method labelled `label`.
-    ///
-    /// # Panics
-    /// When no method has that label; in a `const` this is a compile error.
-    pub const fn named(label: &str) -> SurrogateMethod {
-        let mut i = 0;
-        while i < Self::COUNT {
-            if crate::param::const_str_eq(REGISTRY[i].label, label) {
-                return SurrogateMethod(i as u8);
-            }
-            i += 1;
-        }
-        panic!("no surrogate method of that name")
-    }
-
-    /// The method labelled `label`, if any.
-    pub fn from_label(label: &str) -> Option<SurrogateMethod> {
-        Self::ALL.into_iter().find(|m| m.label() == label)
-    }
-
-    /// Its definition.
-    pub fn def(self) -> &'static SurrogateDef {
-        REGISTRY[self.0 as usize]
-    }
-
     /// The name used in outputs and on the command line.
     pub fn label(self) -> &'static str {
         self.def().label
@@ -168,48 +133,6 @@ impl SurrogateMethod {
     /// What the method needs besides the map.
     pub fn needs(self) -> SpatialNeed {
         self.def().needs
-    }
-}
-
-impl std::fmt::Display for SurrogateMethod {
-    fn fmt(&self, f: &mut std::fmt::Formatter<'_>) -> std::fmt::Result {
-        f.write_str(self.label())
-    }
-}
-
-impl std::fmt::Debug for SurrogateMethod {
-    fn fmt(&self, f: &mut std::fmt::Formatter<'_>) -> std::fmt::Result {
-        f.write_str(self.label())
-    }
-}
-
-impl Serialize for SurrogateMethod {
-    fn serialize<S: serde::Serializer>(&self, s: S) -> Result<S::Ok, S::Error> {
-        s.serialize_str(self.label())
-    }
-}
-
-impl<'de> serde::Deserialize<'de> for SurrogateMethod {
-    fn deserialize<D: serde::Deserializer<'de>>(d: D) -> Result<Self, D::Error> {
-        let label = String::deserialize(d)?;
-        SurrogateMethod::from_label(&label).ok_or_else(|| {
-            let all: Vec<&str> = SurrogateMethod::ALL.iter().map(|m| m.label()).collect();
-            serde::de::Error::custom(format!(
-                "unknown surrogate method `{label}`; expected one of {}",
-                all.join(", ")
-            ))
-        })
-    }
-}
-
-/// The command line's value list comes from the registry.
-#[cfg(feature = "cli")]
-impl clap::ValueEnum for SurrogateMethod {
-    fn value_variants<'a>() -> &'a [Self] {
-        &Self::ALL
-    }
-    fn to_possible_value(&self) -> Option<clap::builder::PossibleValue> {
-        Some(clap::builder::PossibleValue::new(self.label()).help(self.def().summary))
     }
 }
 

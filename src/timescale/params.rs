@@ -8,58 +8,19 @@ use super::TimescaleError;
 use crate::param::ParamError;
 use serde::Serialize;
 
-/// A timescale estimator: a handle on its definition in
-/// [`REGISTRY`], ordered as the tables are.
-/// Named by [`Estimator::named`] (`Estimator::named("acw50")`) or looked up
-/// by [`Estimator::from_name`].
-#[derive(Clone, Copy, PartialEq, Eq, Hash, PartialOrd, Ord)]
-pub struct Estimator(u8);
+crate::registry::method_handle!(
+    /// A timescale estimator: a handle on its definition in
+    /// [`REGISTRY`], ordered as the tables are. Named by
+    /// [`Estimator::named`] (`Estimator::named("acw50")`) or looked up by
+    /// [`Estimator::from_name`].
+    Estimator,
+    EstimatorDef,
+    REGISTRY,
+    name,
+    "timescale estimator"
+);
 
 impl Estimator {
-    /// How many estimators there are.
-    pub const COUNT: usize = REGISTRY.len();
-
-    /// All estimators, in table order.
-    pub const ALL: [Estimator; Self::COUNT] = {
-        let mut all = [Estimator(0); Self::COUNT];
-        let mut i = 0;
-        while i < Self::COUNT {
-            all[i] = Estimator(i as u8);
-            i += 1;
-        }
-        all
-    };
-
-    /// The estimator called `name`.
-    ///
-    /// # Panics
-    /// When no estimator has that name; in a `const` this is a compile error.
-    pub const fn named(name: &str) -> Estimator {
-        let mut i = 0;
-        while i < Self::COUNT {
-            if crate::param::const_str_eq(REGISTRY[i].name, name) {
-                return Estimator(i as u8);
-            }
-            i += 1;
-        }
-        panic!("no timescale estimator of that name")
-    }
-
-    /// The estimator called `name`, if any.
-    pub fn from_name(name: &str) -> Option<Estimator> {
-        Self::ALL.into_iter().find(|e| e.as_str() == name)
-    }
-
-    /// Its definition.
-    pub fn def(self) -> &'static EstimatorDef {
-        REGISTRY[self.0 as usize]
-    }
-
-    /// Its position in table order.
-    pub(crate) fn index(self) -> usize {
-        self.0 as usize
-    }
-
     /// The short name used in tables and on the command line.
     pub fn as_str(self) -> &'static str {
         self.def().name
@@ -68,35 +29,6 @@ impl Estimator {
     /// Column prefix in tables.
     pub fn prefix(self) -> &'static str {
         self.def().prefix
-    }
-}
-
-impl std::fmt::Debug for Estimator {
-    fn fmt(&self, f: &mut std::fmt::Formatter<'_>) -> std::fmt::Result {
-        f.write_str(self.as_str())
-    }
-}
-
-impl std::fmt::Display for Estimator {
-    fn fmt(&self, f: &mut std::fmt::Formatter<'_>) -> std::fmt::Result {
-        f.write_str(self.as_str())
-    }
-}
-
-impl Serialize for Estimator {
-    fn serialize<S: serde::Serializer>(&self, s: S) -> Result<S::Ok, S::Error> {
-        s.serialize_str(self.as_str())
-    }
-}
-
-/// The command line's value list comes from the registry.
-#[cfg(feature = "cli")]
-impl clap::ValueEnum for Estimator {
-    fn value_variants<'a>() -> &'a [Self] {
-        &Self::ALL
-    }
-    fn to_possible_value(&self) -> Option<clap::builder::PossibleValue> {
-        Some(clap::builder::PossibleValue::new(self.as_str()).help(self.def().summary))
     }
 }
 

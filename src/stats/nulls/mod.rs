@@ -100,52 +100,18 @@ pub const REGISTRY: &[&NullModelDef] = &[
     &permute::LENGTH_BIN_SHUFFLE,
 ];
 
-/// A network null model: a handle on its definition in [`REGISTRY`]. Named
-/// by [`NullModel::named`] (`NullModel::named("degree-swap")`); the default
-/// is the first, `degree-swap`.
-#[derive(Clone, Copy, PartialEq, Eq, Hash, PartialOrd, Ord, Default)]
-pub struct NullModel(u8);
+crate::registry::method_handle!(
+    /// A network null model: a handle on its definition in [`REGISTRY`].
+    /// Named by [`NullModel::named`] (`NullModel::named("degree-swap")`);
+    /// the default is the first, `degree-swap`.
+    NullModel,
+    NullModelDef,
+    REGISTRY,
+    label,
+    "network null model"
+);
 
 impl NullModel {
-    /// How many models there are.
-    pub const COUNT: usize = REGISTRY.len();
-
-    /// Every model, in documentation order.
-    pub const ALL: [NullModel; Self::COUNT] = {
-        let mut all = [NullModel(0); Self::COUNT];
-        let mut i = 0;
-        while i < Self::COUNT {
-            all[i] = NullModel(i as u8);
-            i += 1;
-        }
-        all
-    };
-
-    /// The model labelled `label`.
-    ///
-    /// # Panics
-    /// When no model has that label; in a `const` this is a compile error.
-    pub const fn named(label: &str) -> NullModel {
-        let mut i = 0;
-        while i < Self::COUNT {
-            if crate::param::const_str_eq(REGISTRY[i].label, label) {
-                return NullModel(i as u8);
-            }
-            i += 1;
-        }
-        panic!("no network null model of that name")
-    }
-
-    /// The model labelled `label`, if any.
-    pub fn from_label(label: &str) -> Option<NullModel> {
-        Self::ALL.into_iter().find(|m| m.label() == label)
-    }
-
-    /// Its definition.
-    pub fn def(self) -> &'static NullModelDef {
-        REGISTRY[self.0 as usize]
-    }
-
     /// The name used in outputs and on the command line.
     pub fn label(self) -> &'static str {
         self.def().label
@@ -164,48 +130,6 @@ impl NullModel {
     /// Whether the model moves edges by swaps (and so cannot rewire a dense network).
     pub fn swaps_edges(self) -> bool {
         self.def().swaps_edges
-    }
-}
-
-impl std::fmt::Debug for NullModel {
-    fn fmt(&self, f: &mut std::fmt::Formatter<'_>) -> std::fmt::Result {
-        f.write_str(self.label())
-    }
-}
-
-impl std::fmt::Display for NullModel {
-    fn fmt(&self, f: &mut std::fmt::Formatter<'_>) -> std::fmt::Result {
-        f.write_str(self.label())
-    }
-}
-
-impl Serialize for NullModel {
-    fn serialize<S: serde::Serializer>(&self, s: S) -> Result<S::Ok, S::Error> {
-        s.serialize_str(self.label())
-    }
-}
-
-impl<'de> serde::Deserialize<'de> for NullModel {
-    fn deserialize<D: serde::Deserializer<'de>>(d: D) -> Result<Self, D::Error> {
-        let label = String::deserialize(d)?;
-        NullModel::from_label(&label).ok_or_else(|| {
-            let all: Vec<&str> = NullModel::ALL.iter().map(|m| m.label()).collect();
-            serde::de::Error::custom(format!(
-                "unknown null model `{label}`; expected one of {}",
-                all.join(", ")
-            ))
-        })
-    }
-}
-
-/// The command line's value list comes from the registry.
-#[cfg(feature = "cli")]
-impl clap::ValueEnum for NullModel {
-    fn value_variants<'a>() -> &'a [Self] {
-        &Self::ALL
-    }
-    fn to_possible_value(&self) -> Option<clap::builder::PossibleValue> {
-        Some(clap::builder::PossibleValue::new(self.label()).help(self.def().summary))
     }
 }
 
