@@ -32,27 +32,11 @@ use std::time::Instant;
 
 #[path = "support/numpy_eigh.rs"]
 mod numpy_eigh;
+#[path = "support/random_network.rs"]
+mod random_network;
+use random_network::network;
 
 const REPS: usize = 7;
-
-/// Random symmetric weighted network (invented), ~30 % density, a ring so no region is isolated.
-fn network(n: usize, seed: u64) -> Array2<f64> {
-    let mut rng = ChaCha8Rng::seed_from_u64(seed);
-    let mut a = Array2::zeros((n, n));
-    for i in 0..n {
-        for j in (i + 1)..n {
-            if rng.random::<f64>() < 0.3 {
-                let w: f64 = rng.random();
-                a[[i, j]] = w;
-                a[[j, i]] = w;
-            }
-        }
-        let j = (i + 1) % n;
-        a[[i, j]] = a[[i, j]].max(0.1);
-        a[[j, i]] = a[[i, j]];
-    }
-    a
-}
 
 /// A headerless CSV with numbers in Rust's shortest round-trip form (as long
 /// as numpy's `%.17g`), zeros written `0`.

@@ -42,20 +42,15 @@ enum Cell {
 /// `nan` in any case as NaN, which is the missing-value token. ASCII blanks
 /// are trimmed first (fast); other Unicode blanks only when that fails.
 fn classify(cell: &str) -> Cell {
-    match cell.trim_ascii().parse::<f64>() {
-        Ok(v) if v.is_nan() => Cell::Missing,
-        Ok(v) => Cell::Number(v),
-        Err(_) => {
-            let t = cell.trim();
-            match t.parse::<f64>() {
-                Ok(v) if v.is_nan() => Cell::Missing,
-                Ok(v) => Cell::Number(v),
-                Err(_) if ["", "n/a", "na", "null"].iter().any(|m| t.eq_ignore_ascii_case(m)) => {
-                    Cell::Missing
-                }
-                Err(_) => Cell::Text,
-            }
-        }
+    let number = |v: f64| if v.is_nan() { Cell::Missing } else { Cell::Number(v) };
+    if let Ok(v) = cell.trim_ascii().parse::<f64>() {
+        return number(v);
+    }
+    let t = cell.trim();
+    match t.parse::<f64>() {
+        Ok(v) => number(v),
+        Err(_) if ["", "n/a", "na", "null"].iter().any(|m| t.eq_ignore_ascii_case(m)) => Cell::Missing,
+        Err(_) => Cell::Text,
     }
 }
 
@@ -145,11 +140,19 @@ impl<'a> Records<'a> {
         }
     }
 
-    /// The first cell of record `i`.
+    /// The first cell of record `i`, without splitting the rest of the line
+    /// (the row-name check visits every record).
     fn first_cell(&self, i: usize) -> &str {
-        let mut cells = Vec::new();
-        self.cells(i, &mut cells);
-        cells.first().copied().unwrap_or("")
+        match self {
+            Records::Lines { sep: Separator::Whitespace, lines } => {
+                lines[i].1.split_whitespace().next().unwrap_or("")
+            }
+            Records::Lines { sep, lines } => {
+                let delim = if *sep == Separator::Comma { ',' } else { '\t' };
+                lines[i].1.split(delim).next().unwrap_or("")
+            }
+            Records::Unquoted(rows) => rows[i].1.first().map_or("", String::as_str),
+        }
     }
 }
 

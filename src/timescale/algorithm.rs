@@ -58,12 +58,16 @@ pub enum ColumnSource {
     Ar1,
 }
 
+/// The columns of [`ColumnSource::Ar1`]: the AR(1) timescale and its
+/// Marriott–Pope corrected form, s.
+const AR1_COLUMNS: [&str; 2] = ["ar1_tau_s", "ar1_tau_corrected_s"];
+
 impl ColumnSource {
     /// The timescale columns (seconds) this source fills, in table order.
     pub fn columns(self) -> Vec<&'static str> {
         match self {
             ColumnSource::Estimator(e) => e.def().timescales.iter().map(|c| c.name).collect(),
-            ColumnSource::Ar1 => vec!["ar1_tau_s", "ar1_tau_corrected_s"],
+            ColumnSource::Ar1 => AR1_COLUMNS.to_vec(),
         }
     }
 
@@ -190,7 +194,22 @@ impl RegionEstimates {
     /// order, as `(column, value)`, each NaN unless its status is ok. These
     /// are the quantities bootstrapped.
     pub fn primary(&self, p: &ValidTimescaleParams) -> Vec<(&'static str, f64)> {
-        selected_sources(p).into_iter().flat_map(|s| s.columns()).map(|c| (c, self.value(c))).collect()
+        // Read by slot, not by column name: this runs for every bootstrap replicate of every region.
+        let mut out = Vec::new();
+        for &e in &p.estimators {
+            let ok = self.status_of(e) == EstimateStatus::Ok;
+            let at = registry::offset(e.index());
+            for (k, c) in e.def().timescales.iter().enumerate() {
+                out.push((c.name, if ok { self.values[at + k] } else { f64::NAN }));
+            }
+        }
+        if p.bias_correction == BiasCorrection::Ar1 {
+            let ok = self.ar1_status == EstimateStatus::Ok;
+            for (c, v) in AR1_COLUMNS.into_iter().zip([self.ar1_tau_s, self.ar1_tau_corrected_s]) {
+                out.push((c, if ok { v } else { f64::NAN }));
+            }
+        }
+        out
     }
 }
 
