@@ -226,8 +226,8 @@ pub struct LoadedArray {
     pub col_names: Option<Vec<String>>,
     /// Remarks a user should see, e.g. how many `n/a` cells became NaN.
     pub notes: Vec<String>,
-    /// SHA-256 of the whole file, when the reader saw every byte (it is
-    /// taken in the same pass; see [`provenance::InputRecord::of_loaded`]).
+    /// SHA-256 of the whole file, taken while reading it (in the same pass,
+    /// or for HDF5 on a second thread; see [`provenance::InputRecord::of_loaded`]).
     pub digest: Option<provenance::FileDigest>,
 }
 

@@ -31,9 +31,10 @@ impl InputRecord {
 
     /// The record of an input already read: the digest its reader took of
     /// the bytes as they were read, so the file is not read a second time
-    /// (and the digest is of exactly what was analysed). Readers that do not
-    /// see every byte (HDF5 reads only the dataset) leave no digest, and the
-    /// file is digested here.
+    /// (and the digest is of exactly what was analysed). The HDF5 reader,
+    /// which sees only the dataset, digests the file on a second thread
+    /// while it reads. A loaded array without a digest (built in memory)
+    /// has its file digested here.
     ///
     /// # Errors
     /// [`IoError::Os`] when the file must be digested and cannot be read.
