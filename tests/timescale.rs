@@ -702,3 +702,66 @@ fn demo_knee_is_the_same_from_the_command_and_the_subject_job() {
         stage.result.n_valid_frames
     );
 }
+
+/// A series large enough to be memory-mapped (16 MiB or more, as
+/// `hierax timescales` maps a `.npy` series) gives byte-for-byte the table
+/// of the same values read from an `.npz` archive (the copying reader), in
+/// either orientation, and the input's digest is the file's SHA-256 (FIPS
+/// 180-4, via the `sha2` crate).
+#[test]
+fn a_mapped_npy_series_gives_the_table_of_a_read_one() {
+    use sha2::{Digest, Sha256};
+    let dir = tempfile::tempdir().unwrap();
+    let (frames, regions) = (100, 21_000); // 16.8 MB of float64
+    let mut rng = ChaCha8Rng::seed_from_u64(11);
+    let mut x = Array2::<f64>::zeros((frames, regions));
+    for r in 0..regions {
+        let phi = 0.2 + 0.7 * (r as f64 / regions as f64);
+        let mut prev = 0.0;
+        for t in 0..frames {
+            let e: f64 = StandardNormal.sample(&mut rng);
+            prev = phi * prev + e;
+            x[[t, r]] = prev;
+        }
+    }
+    let npy = dir.path().join("bold.npy");
+    ndarray_npy::write_npy(&npy, &x).unwrap();
+    let npy_t = dir.path().join("bold_t.npy");
+    ndarray_npy::write_npy(&npy_t, &x.t().as_standard_layout()).unwrap();
+    let npz = dir.path().join("bold.npz");
+    let mut z = ndarray_npy::NpzWriter::new(std::fs::File::create(&npz).unwrap());
+    z.add_array("bold", &x).unwrap();
+    z.finish().unwrap();
+    let table = |spec: &str, orientation: &str, out: &str| {
+        let o = run(hierax()
+            .arg("timescales")
+            .arg(spec)
+            .args([
+                "--tr",
+                "1",
+                "--estimator",
+                "acw0",
+                "--max-lag",
+                "20",
+                "--orientation",
+                orientation,
+                "--out",
+            ])
+            .arg(dir.path().join(out)));
+        assert!(o.status.success());
+        std::fs::read_to_string(dir.path().join(out).join("timescales.csv")).unwrap()
+    };
+    let read = table(&format!("{}:bold", npz.display()), "time-by-region", "read");
+    assert_eq!(read.lines().count(), regions + 1);
+    assert_eq!(table(npy.to_str().unwrap(), "time-by-region", "mapped"), read);
+    assert_eq!(table(npy_t.to_str().unwrap(), "region-by-time", "mapped_t"), read);
+    let json: Value =
+        serde_json::from_str(&std::fs::read_to_string(dir.path().join("mapped/timescales.json")).unwrap())
+            .unwrap();
+    let input = &json["provenance"]["inputs"][0];
+    let want: String =
+        Sha256::digest(std::fs::read(&npy).unwrap()).iter().map(|b| format!("{b:02x}")).collect();
+    assert_eq!(input["role"], "series");
+    assert_eq!(input["sha256"], want.as_str());
+    assert_eq!(input["bytes"], std::fs::metadata(&npy).unwrap().len());
+}

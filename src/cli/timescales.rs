@@ -2,16 +2,17 @@
 
 use anyhow::bail;
 use clap::Args;
-use hierax::io::provenance::{InputRecord, Provenance};
+use hierax::io::provenance::{FileDigest, InputRecord, Provenance};
 use hierax::io::table::write_json;
 use hierax::io::validate::{self, Orientation};
-use hierax::io::{read_array, InputSpec};
+use hierax::io::{read_array, Format, InputSpec};
 use hierax::timescale::{
     censor_from_displacement, estimate_timescales, BiasCorrection, ColumnSource, Confound, Estimator,
     FitLags, NuisanceSpec, RegionStatus, TimescaleError, TimescaleParams,
 };
 use std::path::PathBuf;
 use std::process::ExitCode;
+use std::sync::Arc;
 
 /// Estimate intrinsic neural timescales of every region of one resting-state
 /// series, from its autocorrelation function and power spectrum.
@@ -24,6 +25,9 @@ use std::process::ExitCode;
 /// lies outside [TR/10, valid frames x TR], has a non-positive amplitude, or
 /// puts the knee outside the fitted band is marked implausible_fit and its
 /// cell left empty (the bounds are our choice).
+///
+/// A float64 .npy series of 16 MiB or more is memory-mapped, not copied:
+/// do not modify or truncate it while the command runs.
 ///
 /// Research software: results are not for clinical decisions.
 #[derive(Debug, Args)]
@@ -145,9 +149,27 @@ fn pair<T: std::str::FromStr>(flag: &str, s: &str) -> anyhow::Result<(T, T)> {
 
 pub fn run(args: TimescalesArgs) -> anyhow::Result<ExitCode> {
     let spec = InputSpec::parse(&args.series)?;
-    let la = read_array(&spec)?;
-    let mut inputs = vec![InputRecord::of_loaded("series", &la)?];
-    let series = validate::series(la, args.orientation, args.regions)?;
+    // A large .npy series is read in place from the page cache (no copy, no
+    // fresh memory to clear) and digested on a second thread meanwhile.
+    let map = map_large_npy(&spec);
+    let owned;
+    let (series, series_digest) = match map
+        .as_ref()
+        .and_then(|m| Some((m, hierax::io::npy::view_f64_matrix(m)?)))
+    {
+        Some((map, view)) => {
+            let bytes = Arc::clone(map);
+            let job = std::thread::spawn(move || FileDigest::of_bytes(&bytes));
+            (validate::series_view(&spec, view, args.orientation, args.regions)?, SeriesDigest::Pending(job))
+        }
+        None => {
+            let la = read_array(&spec)?;
+            let record = InputRecord::of_loaded("series", &la)?;
+            owned = validate::series(la, args.orientation, args.regions)?;
+            (owned.view(), SeriesDigest::Taken(record))
+        }
+    };
+    let mut inputs = Vec::new();
     let (n_frames, n_regions) = series.data.dim();
     let names: Vec<String> =
         series.names.clone().unwrap_or_else(|| hierax::io::default_region_names(n_regions));
@@ -219,7 +241,7 @@ pub fn run(args: TimescalesArgs) -> anyhow::Result<ExitCode> {
     params.bias_correction = args.bias_correction;
     params.threads = args.jobs;
     let valid_params = params.check(n_frames).map_err(|e| with_flags(e, &spec))?;
-    let result = estimate_timescales(series.data.view(), &names, valid.as_deref(), &confounds, &valid_params)
+    let result = estimate_timescales(series.data, &names, valid.as_deref(), &confounds, &valid_params)
         .map_err(|e| {
             let by = if e.blames_censoring() {
                 args.censor_mask.as_ref().or(args.confounds.as_ref())
@@ -254,6 +276,7 @@ pub fn run(args: TimescalesArgs) -> anyhow::Result<ExitCode> {
     for r in &result.regions {
         *status_counts.entry(result.qc_string(r)).or_default() += 1;
     }
+    inputs.insert(0, series_digest.finish(&spec)?);
     let mut prov = Provenance::new(
         "timescales",
         serde_json::json!({"timescale": valid_params, "censoring": censoring,
@@ -295,6 +318,49 @@ pub fn run(args: TimescalesArgs) -> anyhow::Result<ExitCode> {
     }
     println!("wrote {} and {}", csv.display(), json.display());
     Ok(ExitCode::SUCCESS)
+}
+
+/// Series files at least this large are memory-mapped rather than read
+/// (below it a read costs little). Our choice.
+const MAP_MIN_BYTES: u64 = 16 << 20;
+
+/// `spec`'s file mapped read-only, when it is a `.npy` file (no key) of at
+/// least [`MAP_MIN_BYTES`]; `None` otherwise or when mapping fails, and the
+/// file is read instead (which also reports any error).
+fn map_large_npy(spec: &InputSpec) -> Option<Arc<memmap2::Mmap>> {
+    if spec.key.is_some() || !matches!(spec.format(), Ok(Format::Npy)) {
+        return None;
+    }
+    let file = std::fs::File::open(&spec.path).ok()?;
+    if file.metadata().ok()?.len() < MAP_MIN_BYTES {
+        return None;
+    }
+    // SAFETY: the map is read-only and hierax never writes its inputs. The
+    // one hazard is another process changing the file while hierax runs:
+    // the values read would change with it, and a truncated file would end
+    // the process with SIGBUS (numpy's mmap_mode="r" has the same contract).
+    // The docs of the timescales command say not to modify an input in use.
+    let map = unsafe { memmap2::MmapOptions::new().populate().map(&file) }.ok()?;
+    Some(Arc::new(map))
+}
+
+/// The series input's record: taken while reading, or being taken from the
+/// mapped file on another thread.
+enum SeriesDigest {
+    Taken(InputRecord),
+    Pending(std::thread::JoinHandle<FileDigest>),
+}
+
+impl SeriesDigest {
+    fn finish(self, spec: &InputSpec) -> anyhow::Result<InputRecord> {
+        match self {
+            SeriesDigest::Taken(r) => Ok(r),
+            SeriesDigest::Pending(job) => {
+                let d = job.join().map_err(|_| anyhow::anyhow!("{spec}: digesting the file failed"))?;
+                Ok(InputRecord::of_digest("series", spec, d))
+            }
+        }
+    }
 }
 
 /// A timescale error with library parameter names replaced by flags.

@@ -202,6 +202,17 @@ pub fn read_npy_file(spec: &InputSpec) -> Result<LoadedArray, IoError> {
     Ok(la)
 }
 
+/// The 2-D float64 array of a `.npy` file's bytes as a view, without a
+/// copy, when the file stores native-endian float64 in either memory order
+/// at an aligned offset (numpy pads the header to 64 bytes); `None` for
+/// anything else, which the reader ([`read_npy_file`]) handles or refuses
+/// with its own message. For memory-mapped files: the caller maps the file
+/// (the library has no unsafe code) and borrows the view.
+pub fn view_f64_matrix(bytes: &[u8]) -> Option<ndarray::ArrayView2<'_, f64>> {
+    use ndarray_npy::ViewNpyExt;
+    ndarray::ArrayView2::<f64>::view_npy(bytes).ok()
+}
+
 /// Read one array of a `.npz` archive; the key may be omitted when it holds one.
 ///
 /// # Errors
@@ -328,6 +339,32 @@ mod tests {
         b.append(&mut h);
         b.extend_from_slice(&[0u8; 16]);
         b
+    }
+
+    #[test]
+    fn a_float64_matrix_file_is_viewed_in_place_in_either_order() {
+        let dir = tempfile::tempdir().unwrap();
+        let m = ndarray::Array2::from_shape_fn((4, 3), |(i, j)| (i * 3 + j) as f64 - 0.5);
+        for (name, a) in
+            [("c.npy", m.clone()), ("f.npy", m.t().as_standard_layout().reversed_axes().to_owned())]
+        {
+            let path = dir.path().join(name);
+            ndarray_npy::write_npy(&path, &a).unwrap();
+            let bytes = std::fs::read(&path).unwrap();
+            let fortran = String::from_utf8_lossy(&bytes[..128]).contains("'fortran_order': True");
+            assert_eq!(fortran, name == "f.npy");
+            let v = view_f64_matrix(&bytes).unwrap();
+            assert_eq!(v, m.view(), "{name}");
+        }
+        // Anything else is left to the reader: float32, 1-D, or a file cut short.
+        let path = dir.path().join("s.npy");
+        ndarray_npy::write_npy(&path, &m.mapv(|v| v as f32)).unwrap();
+        assert!(view_f64_matrix(&std::fs::read(&path).unwrap()).is_none());
+        ndarray_npy::write_npy(&path, &ndarray::Array1::<f64>::zeros(5)).unwrap();
+        assert!(view_f64_matrix(&std::fs::read(&path).unwrap()).is_none());
+        ndarray_npy::write_npy(&path, &m).unwrap();
+        let bytes = std::fs::read(&path).unwrap();
+        assert!(view_f64_matrix(&bytes[..bytes.len() - 8]).is_none());
     }
 
     #[test]

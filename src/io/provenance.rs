@@ -40,13 +40,18 @@ impl InputRecord {
     /// [`IoError::Os`] when the file must be digested and cannot be read.
     pub fn of_loaded(role: &str, loaded: &super::LoadedArray) -> Result<Self, IoError> {
         match &loaded.digest {
-            Some(d) => Ok(InputRecord {
-                role: role.to_string(),
-                spec: loaded.spec.to_string(),
-                sha256: d.sha256.clone(),
-                bytes: d.bytes,
-            }),
+            Some(d) => Ok(Self::of_digest(role, &loaded.spec, d.clone())),
             None => Self::of(role, &loaded.spec),
+        }
+    }
+
+    /// The record of `spec`'s file from a digest already taken.
+    pub fn of_digest(role: &str, spec: &super::InputSpec, digest: FileDigest) -> Self {
+        InputRecord {
+            role: role.to_string(),
+            spec: spec.to_string(),
+            sha256: digest.sha256,
+            bytes: digest.bytes,
         }
     }
 }

@@ -5,8 +5,8 @@
 //! an [`IoError::Invalid`] naming the file, the role and what was expected.
 //! Checks are written positively (`x >= 0`) so that NaN always fails.
 
-use super::{IoError, LoadedArray};
-use ndarray::{Array1, Array2};
+use super::{InputSpec, IoError, LoadedArray};
+use ndarray::{Array1, Array2, ArrayView2};
 use serde::Serialize;
 
 /// What to do with a non-zero diagonal (self-connections) of a connectome.
@@ -227,16 +227,91 @@ pub fn series(
     orientation: Orientation,
     n_regions: Option<usize>,
 ) -> Result<Series, IoError> {
-    let field = "time series";
     let spec = la.spec.clone();
-    let bad = |msg: String| IoError::invalid(&spec, field, msg);
     if la.data.ndim() != 2 {
-        return Err(bad(format!(
-            "expected a 2-D matrix (time points x regions), found shape {:?}",
-            la.data.shape()
-        )));
+        return Err(IoError::invalid(
+            &spec,
+            SERIES_FIELD,
+            format!("expected a 2-D matrix (time points x regions), found shape {:?}", la.data.shape()),
+        ));
     }
     let (rows, cols) = (la.data.shape()[0], la.data.shape()[1]);
+    let (transpose, how) =
+        series_layout(&spec, (rows, cols), orientation, n_regions, la.col_names.is_some())?;
+    let names = if transpose { la.row_names.clone() } else { la.col_names.clone() };
+    let mut notes = la.notes.clone();
+    // Consume the loaded array so its values are held once (a transpose needs one copy).
+    let m = la.into_matrix()?;
+    let data = if transpose { m.t().as_standard_layout().into_owned() } else { m };
+    if let (Some(n), Some(names)) = (n_regions, &names) {
+        if names.len() != n {
+            return Err(IoError::invalid(
+                &spec,
+                SERIES_FIELD,
+                format!("{} region names for {n} regions", names.len()),
+            ));
+        }
+    }
+    notes.extend(nonfinite_note(data.view()));
+    Ok(Series { data, names, orientation: how.to_string(), notes })
+}
+
+/// A validated time series borrowed from memory the caller holds (a
+/// memory-mapped `.npy` file): the same checks as [`series`], with
+/// region-by-time data turned by a transposed view instead of a copy.
+#[derive(Clone, Debug)]
+pub struct SeriesView<'a> {
+    /// Values, frames × regions (any strides).
+    pub data: ArrayView2<'a, f64>,
+    /// Region names, if the file has them.
+    pub names: Option<Vec<String>>,
+    /// How the orientation was settled.
+    pub orientation: String,
+    /// Remarks for the user.
+    pub notes: Vec<String>,
+}
+
+impl Series {
+    /// The series as a [`SeriesView`] (names and notes copied).
+    pub fn view(&self) -> SeriesView<'_> {
+        SeriesView {
+            data: self.data.view(),
+            names: self.names.clone(),
+            orientation: self.orientation.clone(),
+            notes: self.notes.clone(),
+        }
+    }
+}
+
+/// [`series`] for a matrix borrowed from `spec`'s file (which has no region
+/// names: a `.npy` array).
+///
+/// # Errors
+/// As [`series`].
+pub fn series_view<'a>(
+    spec: &InputSpec,
+    view: ArrayView2<'a, f64>,
+    orientation: Orientation,
+    n_regions: Option<usize>,
+) -> Result<SeriesView<'a>, IoError> {
+    let (transpose, how) = series_layout(spec, view.dim(), orientation, n_regions, false)?;
+    let data = if transpose { view.reversed_axes() } else { view };
+    let notes = nonfinite_note(data).into_iter().collect();
+    Ok(SeriesView { data, names: None, orientation: how.to_string(), notes })
+}
+
+const SERIES_FIELD: &str = "time series";
+
+/// Whether a `rows × cols` series must be transposed to time × region, and
+/// how that was settled (see [`series`]).
+fn series_layout(
+    spec: &InputSpec,
+    (rows, cols): (usize, usize),
+    orientation: Orientation,
+    n_regions: Option<usize>,
+    has_header: bool,
+) -> Result<(bool, &'static str), IoError> {
+    let bad = |msg: String| IoError::invalid(spec, SERIES_FIELD, msg);
     let transpose = match orientation {
         Orientation::TimeByRegion => false,
         Orientation::RegionByTime => true,
@@ -254,7 +329,7 @@ pub fn series(
                     "is {rows} x {cols}, but neither axis has the {n} regions of the other inputs"
                 )))
             }
-            None if la.col_names.is_some() => false,
+            None if has_header => false,
             None => {
                 return Err(bad(format!(
                     "is {rows} x {cols} with no header of region names and no region count from another \
@@ -269,21 +344,19 @@ pub fn series(
         (_, false) => "time x region (as declared)",
         (_, true) => "region x time in the file, transposed (as declared)",
     };
-    let names = if transpose { la.row_names.clone() } else { la.col_names.clone() };
-    let mut notes = la.notes.clone();
-    // Consume the loaded array so its values are held once (a transpose needs one copy).
-    let m = la.into_matrix()?;
-    let data = if transpose { m.t().as_standard_layout().into_owned() } else { m };
-    if let (Some(n), Some(names)) = (n_regions, &names) {
-        if names.len() != n {
-            return Err(bad(format!("{} region names for {n} regions", names.len())));
-        }
-    }
-    let nonfinite = data.iter().filter(|v| !v.is_finite()).count();
-    if nonfinite > 0 {
-        notes.push(format!("{nonfinite} non-finite value(s); affected regions or frames are handled by QC"));
-    }
-    Ok(Series { data, names, orientation: how.to_string(), notes })
+    Ok((transpose, how))
+}
+
+/// The note counting non-finite values, if there are any (counted over
+/// frames in parallel: for a large series this is a pass over all of it).
+fn nonfinite_note(data: ArrayView2<'_, f64>) -> Option<String> {
+    use rayon::prelude::*;
+    let nonfinite: usize = (0..data.nrows())
+        .into_par_iter()
+        .map(|t| data.row(t).iter().filter(|v| !v.is_finite()).count())
+        .sum();
+    (nonfinite > 0)
+        .then(|| format!("{nonfinite} non-finite value(s); affected regions or frames are handled by QC"))
 }
 
 /// A validated regional map (one value per region). NaN marks a region with
@@ -483,6 +556,28 @@ mod tests {
         assert!(e.contains("--orientation"), "{e}");
         let e = series(la(m), Orientation::Auto, Some(4)).unwrap_err().to_string();
         assert!(e.contains("neither axis has the 4 regions"), "{e}");
+    }
+
+    #[test]
+    fn a_borrowed_series_is_checked_and_turned_like_an_owned_one() {
+        let mut m = Array2::from_shape_fn((10, 3), |(t, r)| (t * 3 + r) as f64);
+        m[[4, 1]] = f64::NAN;
+        let spec = InputSpec::new("s.npy", None);
+        for (file, orientation, n) in [
+            (m.clone(), Orientation::Auto, Some(3)),
+            (m.t().to_owned(), Orientation::Auto, Some(3)),
+            (m.t().to_owned(), Orientation::RegionByTime, None),
+            (m.clone(), Orientation::TimeByRegion, None),
+        ] {
+            let owned = series(la(file.clone()), orientation, n).unwrap();
+            let view = series_view(&spec, file.view(), orientation, n).unwrap();
+            assert!(view.data.iter().zip(owned.data.iter()).all(|(a, b)| a.to_bits() == b.to_bits()));
+            assert_eq!(view.data.dim(), (10, 3));
+            assert_eq!((&view.orientation, &view.notes), (&owned.orientation, &owned.notes));
+            assert_eq!(view.notes, ["1 non-finite value(s); affected regions or frames are handled by QC"]);
+        }
+        let e = series_view(&spec, m.view(), Orientation::Auto, None).unwrap_err().to_string();
+        assert!(e.contains("--orientation"), "{e}");
     }
 
     #[test]
