@@ -69,6 +69,7 @@ fn case(label: &str, n_frames: usize, n_regions: usize, max_lag: usize, repeats:
         ])
         .output()
         .expect("python runs");
+    let command_s = command_seconds(&path, max_lag, repeats, dir);
     let _ = std::fs::remove_file(&path);
     let text = String::from_utf8_lossy(&out.stdout);
     let py: serde_json::Value = match serde_json::from_str(text.trim()) {
@@ -105,6 +106,10 @@ fn case(label: &str, n_frames: usize, n_regions: usize, max_lag: usize, repeats:
         py["numpy"].as_str().unwrap_or("?")
     );
     println!("  ratio numpy / hierax = {:.2}x", py_s / best);
+    println!(
+        "  hierax timescales command {command_s:>8.4} s  (best of {repeats}: read or map, digest, validate, estimate, write)"
+    );
+    println!("  ratio numpy estimate alone / whole command = {:.2}x", py_s / command_s);
     match (reset, hwm) {
         (true, Some(h)) => println!(
             "  hierax peak RSS during estimation {:.1} MB = {:.3} x input ({:.1} MB)",
@@ -137,6 +142,27 @@ fn case(label: &str, n_frames: usize, n_regions: usize, max_lag: usize, repeats:
         }
     }
     println!("  max |hierax - numpy| over the first {check} regions: {worst:.2e} s");
+}
+
+/// Best wall seconds of `hierax timescales` on the same file and estimators.
+fn command_seconds(path: &Path, max_lag: usize, repeats: usize, dir: &Path) -> f64 {
+    let out = dir.join("command-out");
+    (0..repeats)
+        .map(|_| {
+            let t0 = Instant::now();
+            let o = Command::new(env!("CARGO_BIN_EXE_hierax"))
+                .arg("timescales")
+                .arg(path)
+                .args(["--tr", &TR_S.to_string(), "--orientation", "time-by-region", "--max-lag"])
+                .arg(max_lag.to_string())
+                .args(["--estimator", "initial-positive-sum,acw50,acw0", "--out"])
+                .arg(&out)
+                .output()
+                .expect("run hierax");
+            assert!(o.status.success(), "hierax timescales failed: {}", String::from_utf8_lossy(&o.stderr));
+            t0.elapsed().as_secs_f64()
+        })
+        .fold(f64::INFINITY, f64::min)
 }
 
 fn main() {
