@@ -1600,28 +1600,26 @@ mod tests {
     fn banding_is_declined_where_it_would_not_help() {
         let dir = tempfile::tempdir().unwrap();
         let data = vec![1.5; 1000 * 40];
+        let declined = |path: &Path, sizes: (usize, usize)| {
+            let ds = open(path).unwrap().dataset("x").unwrap();
+            read_values_banded_by(path, "/x", &ds, &[1000, 40], false, sizes).unwrap().is_none()
+        };
+        let compressed = |band: u64| {
+            compressed_file(dir.path(), 1000, band, |b| {
+                b.with_f64_data(&data);
+            })
+        };
         // One chunk band spans every row: each window would decode it again.
-        let path = compressed_file(dir.path(), 1000, 1000, |b| {
-            b.with_f64_data(&data);
-        });
-        let file = open(&path).unwrap();
-        let ds = file.dataset("x").unwrap();
-        assert!(read_values_banded_by(&path, "/x", &ds, &[1000, 40], false, (0, 1)).unwrap().is_none());
+        assert!(declined(&compressed(1000), (0, 1)));
         // Below the size threshold.
-        let path = compressed_file(dir.path(), 1000, 7, |b| {
-            b.with_f64_data(&data);
-        });
-        let file = open(&path).unwrap();
-        let ds = file.dataset("x").unwrap();
-        assert!(read_values_banded(&path, "/x", &ds, &[1000, 40], false).unwrap().is_none());
+        assert!(declined(&compressed(7), (BANDED_READ_MIN_BYTES, BANDED_WINDOW_BYTES)));
+        assert!(!declined(&compressed(7), (0, 1)));
         // Unfiltered: the whole read is already one copy.
         let mut fb = h5::FileBuilder::new();
         fb.create_dataset("x").with_f64_data(&data).with_shape(&[1000, 40]);
         let path = dir.path().join("plain.h5");
         std::fs::write(&path, fb.finish().unwrap()).unwrap();
-        let file = open(&path).unwrap();
-        let ds = file.dataset("x").unwrap();
-        assert!(read_values_banded_by(&path, "/x", &ds, &[1000, 40], false, (0, 1)).unwrap().is_none());
+        assert!(declined(&path, (0, 1)));
     }
 
     #[test]
