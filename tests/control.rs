@@ -382,25 +382,10 @@ fn a_single_driver_on_a_long_chain_is_refused_with_its_condition() {
     assert!(matches!(t, ControlError::SingularGramian { .. }), "{t}");
 }
 
-/// A seeded random undirected network on n nodes with a ring, so none is isolated.
-fn random_network(n: usize, seed: u64) -> Array2<f64> {
-    use rand::{Rng, SeedableRng};
-    let mut rng = rand_chacha::ChaCha20Rng::seed_from_u64(seed);
-    let mut a = Array2::zeros((n, n));
-    for i in 0..n {
-        for j in (i + 1)..n {
-            if rng.random::<f64>() < 0.3 {
-                let w: f64 = rng.random();
-                a[[i, j]] = w;
-                a[[j, i]] = w;
-            }
-        }
-        let j = (i + 1) % n;
-        a[[i, j]] = f64::max(a[[i, j]], 0.1);
-        a[[j, i]] = a[[i, j]];
-    }
-    a
-}
+// The invented seeded network of the control benches (a ring, so no node is isolated).
+#[path = "../benches/support/random_network.rs"]
+mod random_network;
+use random_network::network as random_network;
 
 #[test]
 fn discrete_time_with_too_few_drivers_for_the_horizon_is_refused_by_its_rank_bound() {

@@ -1,4 +1,4 @@
-//! The invented random network shared by the control benches.
+//! The invented random network shared by the control benches and `tests/control.rs`.
 
 use ndarray::Array2;
 use rand::{Rng, SeedableRng};
