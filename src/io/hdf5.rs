@@ -555,38 +555,22 @@ type Decoded = (Vec<f64>, Option<String>);
 /// The values of a numeric dataset as `f64`, flat, in stored order, with a
 /// note when integers beyond 2^53 had to be rounded.
 fn read_values(path: &Path, name: &str, ds: &h5::Dataset) -> Result<Decoded, IoError> {
-    use h5::DType as D;
     let e = |err: h5::Error| read_err(path, name, ds, &err);
     let dtype = ds.dtype().map_err(e)?;
-    let rounded = |n: usize| {
-        (n > 0).then(|| {
-            format!("{n} integer values of `{name}` exceed 2^53 and were rounded to the nearest float64")
-        })
+    let Some(decode) = Decode::of(&dtype) else {
+        return Err(IoError::format(
+            path,
+            format!("dataset `{name}` holds {} values; expected numbers", dtype_name(&dtype)),
+        ));
     };
-    Ok(match dtype {
-        D::F64 => (ds.read_f64().map_err(e)?, None),
-        D::F32 => (ds.read_f32().map_err(e)?.into_iter().map(f64::from).collect(), None),
-        D::I8 | D::I16 | D::I32 | D::I64 => {
-            let v = ds.read_i64().map_err(e)?;
-            let big = v.iter().filter(|x| x.unsigned_abs() > EXACT_INT).count();
-            (v.into_iter().map(|x| x as f64).collect(), rounded(big))
-        }
-        D::U8 | D::U16 | D::U32 | D::U64 => {
-            let v = ds.read_u64().map_err(e)?;
-            let big = v.iter().filter(|&&x| x > EXACT_INT).count();
-            (v.into_iter().map(|x| x as f64).collect(), rounded(big))
-        }
-        D::Enum(ref names) if is_bool_enum(names) => {
-            // hdf5-pure decodes an enum through its integer base: FALSE = 0, TRUE = 1.
-            let v = ds.read_i64().map_err(e)?;
-            (v.into_iter().map(|x| if x != 0 { 1.0 } else { 0.0 }).collect(), None)
-        }
-        other => {
-            return Err(IoError::format(
-                path,
-                format!("dataset `{name}` holds {} values; expected numbers", dtype_name(&other)),
-            ))
-        }
+    let (values, rounded) = decode.read(ds, None).map_err(e)?;
+    Ok((values, rounded_note(name, rounded)))
+}
+
+/// The note for `n` integers of dataset `name` rounded to float64, if any.
+fn rounded_note(name: &str, n: usize) -> Option<String> {
+    (n > 0).then(|| {
+        format!("{n} integer values of `{name}` exceed 2^53 and were rounded to the nearest float64")
     })
 }
 
@@ -610,15 +594,49 @@ enum Decode {
 }
 
 impl Decode {
+    /// The decoding of a stored type ([`stored_of`] classifies the HDF5 type once).
     fn of(dtype: &h5::DType) -> Option<Decode> {
-        use h5::DType as D;
-        Some(match dtype {
-            D::F64 => Decode::F64,
-            D::F32 => Decode::F32,
-            D::I8 | D::I16 | D::I32 | D::I64 => Decode::Signed,
-            D::U8 | D::U16 | D::U32 | D::U64 => Decode::Unsigned,
-            D::Enum(names) if is_bool_enum(names) => Decode::Bool,
+        use StoredType as S;
+        Some(match stored_of(dtype)? {
+            S::Float64 => Decode::F64,
+            S::Float32 => Decode::F32,
+            S::Int8 | S::Int16 | S::Int32 | S::Int64 => Decode::Signed,
+            S::Uint8 | S::Uint16 | S::Uint32 | S::Uint64 => Decode::Unsigned,
+            S::Bool => Decode::Bool,
             _ => return None,
+        })
+    }
+
+    /// The values of `ds` as `f64`, all of them or the row window
+    /// `(start, count)`, and how many integers beyond 2^53 were rounded.
+    fn read(self, ds: &h5::Dataset, rows: Option<(u64, u64)>) -> Result<(Vec<f64>, usize), h5::Error> {
+        let widen = |v: Vec<i64>| {
+            let big = v.iter().filter(|x| x.unsigned_abs() > EXACT_INT).count();
+            (v.into_iter().map(|x| x as f64).collect(), big)
+        };
+        Ok(match (self, rows) {
+            (Decode::F64, None) => (ds.read_f64()?, 0),
+            (Decode::F64, Some((s, c))) => (ds.read_f64_rows(s, c)?, 0),
+            (Decode::F32, None) => (ds.read_f32()?.into_iter().map(f64::from).collect(), 0),
+            (Decode::F32, Some((s, c))) => (ds.read_f32_rows(s, c)?.into_iter().map(f64::from).collect(), 0),
+            (Decode::Signed, None) => widen(ds.read_i64()?),
+            (Decode::Signed, Some((s, c))) => widen(ds.read_i64_rows(s, c)?),
+            (Decode::Unsigned, _) => {
+                let v = match rows {
+                    None => ds.read_u64()?,
+                    Some((s, c)) => ds.read_u64_rows(s, c)?,
+                };
+                let big = v.iter().filter(|&&x| x > EXACT_INT).count();
+                (v.into_iter().map(|x| x as f64).collect(), big)
+            }
+            (Decode::Bool, _) => {
+                // hdf5-pure decodes an enum through its integer base: FALSE = 0, TRUE = 1.
+                let v = match rows {
+                    None => ds.read_i64()?,
+                    Some((s, c)) => ds.read_i64_rows(s, c)?,
+                };
+                (v.into_iter().map(|x| if x != 0 { 1.0 } else { 0.0 }).collect(), 0)
+            }
         })
     }
 
@@ -631,55 +649,20 @@ impl Decode {
         count: u64,
         out: &mut [f64],
     ) -> Result<usize, IoError> {
-        let e = |err: h5::Error| read_err(path, name, ds, &err);
-        let fits = |len: usize| {
-            if len == out.len() {
-                Ok(())
-            } else {
-                Err(IoError::format(
-                    path,
-                    format!(
-                        "dataset `{name}`: rows {start}..{} decoded to {len} values, expected {}",
-                        start + count,
-                        out.len()
-                    ),
-                ))
-            }
-        };
-        let mut rounded = 0;
-        match self {
-            Decode::F64 => {
-                let v = ds.read_f64_rows(start, count).map_err(e)?;
-                fits(v.len())?;
-                out.copy_from_slice(&v);
-            }
-            Decode::F32 => {
-                let v = ds.read_f32_rows(start, count).map_err(e)?;
-                fits(v.len())?;
-                out.iter_mut().zip(v).for_each(|(o, x)| *o = f64::from(x));
-            }
-            Decode::Signed | Decode::Bool => {
-                let v = ds.read_i64_rows(start, count).map_err(e)?;
-                fits(v.len())?;
-                let bool = matches!(self, Decode::Bool);
-                for (o, x) in out.iter_mut().zip(v) {
-                    *o = if bool {
-                        f64::from(u8::from(x != 0))
-                    } else {
-                        rounded += usize::from(x.unsigned_abs() > EXACT_INT);
-                        x as f64
-                    };
-                }
-            }
-            Decode::Unsigned => {
-                let v = ds.read_u64_rows(start, count).map_err(e)?;
-                fits(v.len())?;
-                for (o, x) in out.iter_mut().zip(v) {
-                    rounded += usize::from(x > EXACT_INT);
-                    *o = x as f64;
-                }
-            }
+        let (v, rounded) =
+            self.read(ds, Some((start, count))).map_err(|err| read_err(path, name, ds, &err))?;
+        if v.len() != out.len() {
+            return Err(IoError::format(
+                path,
+                format!(
+                    "dataset `{name}`: rows {start}..{} decoded to {} values, expected {}",
+                    start + count,
+                    v.len(),
+                    out.len()
+                ),
+            ));
         }
+        out.copy_from_slice(&v);
         Ok(rounded)
     }
 }
@@ -780,10 +763,7 @@ fn read_values_banded_by(
             .collect::<Result<_, IoError>>()?;
         per_part.iter().sum()
     };
-    let note = (rounded > 0).then(|| {
-        format!("{rounded} integer values of `{name}` exceed 2^53 and were rounded to the nearest float64")
-    });
-    Ok(Some((values, note)))
+    Ok(Some((values, rounded_note(name, rounded))))
 }
 
 /// The per-thread dataset handle and window decoder of a banded read.
